@@ -1,0 +1,65 @@
+"""Exception classes. Every user-facing failure is a :class:`TeffmcError`.
+
+The command line prints ``str(error)`` on one line and exits with status 2 for
+the input errors below; anything else is an internal error (status 1).
+"""
+
+__all__ = [
+    "TeffmcError",
+    "ConfigError",
+    "DataError",
+    "GridError",
+    "OffGridError",
+    "ConvergenceWarning",
+]
+
+
+class TeffmcError(Exception):
+    """Base class of all errors raised on purpose by teffmc."""
+
+
+class ConfigError(TeffmcError):
+    """A configuration file is invalid. The message names file, key and value."""
+
+    def __init__(self, message, *, file=None, key=None, value=None):
+        self.file, self.key, self.value = file, key, value
+        where = ":".join(str(p) for p in (file, key) if p is not None)
+        super().__init__(f"{where}: {message}" if where else message)
+
+
+class DataError(TeffmcError):
+    """An observation file is unusable. The message names file and column."""
+
+    def __init__(self, message, *, file=None, column=None, value=None):
+        self.file, self.column, self.value = file, column, value
+        where = ":".join(str(p) for p in (file, column) if p is not None)
+        super().__init__(f"{where}: {message}" if where else message)
+
+
+class GridError(TeffmcError):
+    """A photosphere grid file is malformed or cannot serve the request."""
+
+
+class OffGridError(GridError):
+    """A requested (Teff, log g, [M/H]) lies outside the grid.
+
+    Attributes
+    ----------
+    point : dict
+        The requested parameter values.
+    bounds : dict
+        ``{name: (low, high)}`` of the grid axes.
+    """
+
+    def __init__(self, point, bounds):
+        self.point, self.bounds = dict(point), dict(bounds)
+        bad = [
+            f"{k}={v:g} not in [{bounds[k][0]:g}, {bounds[k][1]:g}]"
+            for k, v in self.point.items()
+            if k in bounds and not (bounds[k][0] <= v <= bounds[k][1])
+        ]
+        super().__init__("point outside the grid: " + ("; ".join(bad) or str(self.point)))
+
+
+class ConvergenceWarning(UserWarning):
+    """The sampler stopped before its convergence criterion was met."""
