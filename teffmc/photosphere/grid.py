@@ -1,0 +1,250 @@
+"""The photosphere grid: file format and batch interpolation.
+
+A grid is one HDF5 file (readable by any HDF5 or netCDF-4 reader) holding
+
+``teff`` [K], ``logg`` [cgs dex], ``mh`` [dex]
+    ascending 1-D axes;
+``wave`` [Angstrom, vacuum]
+    ascending 1-D axis;
+``log_flux`` [log10 erg s^-1 cm^-2 Angstrom^-1]
+    float32 array (n_teff, n_logg, n_mh, n_wave) of surface F_lambda; NaN marks a
+    node that the grid does not have (a hole);
+
+and root attributes ``format`` (``"teffmc-grid"``), ``format_version``, ``name``,
+``checksum`` (SHA-256 of the axes and flux bytes, checked on load) and
+``provenance/<key>`` strings saying where the spectra came from.
+
+Interpolation is multilinear in (Teff, log g, [M/H]) on log flux, exact at the
+nodes, for a whole batch of points at once. A point outside the axes raises
+:class:`~teffmc.errors.OffGridError`; a point whose surrounding cell touches a
+hole raises it too (interpolation never silently crosses a hole).
+"""
+
+import hashlib
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import GridError, OffGridError
+
+__all__ = ["Grid", "AXES", "FORMAT", "grid_checksum"]
+
+AXES = ("teff", "logg", "mh")
+FORMAT = "teffmc-grid"
+FORMAT_VERSION = 1
+
+
+def grid_checksum(teff, logg, mh, wave, log_flux):
+    """SHA-256 hex digest of the axes and the float32 flux, in a fixed byte order."""
+    h = hashlib.sha256()
+    for a in (teff, logg, mh, wave):
+        h.update(np.ascontiguousarray(a, dtype="<f8").tobytes())
+    h.update(np.ascontiguousarray(log_flux, dtype="<f4").tobytes())
+    return h.hexdigest()
+
+
+def _check_axis(name, values):
+    values = np.atleast_1d(np.asarray(values, dtype=float))
+    if values.ndim != 1 or values.size == 0 or not np.all(np.isfinite(values)):
+        raise GridError(f"grid axis {name!r} must be a finite 1-D array")
+    if values.size > 1 and not np.all(np.diff(values) > 0):
+        raise GridError(f"grid axis {name!r} must be strictly increasing")
+    return values
+
+
+@dataclass(frozen=True, eq=False)
+class Grid:
+    """A regular grid of model surface fluxes.
+
+    Parameters
+    ----------
+    teff, logg, mh : array_like
+        Ascending node values [K], [cgs dex], [dex].
+    wave : array_like
+        Ascending vacuum wavelengths [Angstrom].
+    log_flux : array_like
+        log10 surface F_lambda [erg s^-1 cm^-2 Angstrom^-1], shape
+        (n_teff, n_logg, n_mh, n_wave); NaN marks a missing node.
+    provenance : dict
+        Free-form strings describing the origin of the spectra.
+    name : str
+        Short name shown in reports.
+    """
+
+    teff: np.ndarray
+    logg: np.ndarray
+    mh: np.ndarray
+    wave: np.ndarray
+    log_flux: np.ndarray
+    provenance: dict = field(default_factory=dict)
+    name: str = "grid"
+
+    def __post_init__(self):
+        for ax in (*AXES, "wave"):
+            object.__setattr__(self, ax, _check_axis(ax, getattr(self, ax)))
+        lf = np.asarray(self.log_flux)
+        shape = (self.teff.size, self.logg.size, self.mh.size, self.wave.size)
+        if lf.shape != shape:
+            raise GridError(f"log_flux has shape {lf.shape}, expected {shape}")
+        object.__setattr__(self, "log_flux", lf)
+        object.__setattr__(self, "provenance", {str(k): str(v) for k, v in self.provenance.items()})
+        nodes_ok = np.all(np.isfinite(lf), axis=-1)
+        partial = np.any(np.isfinite(lf), axis=-1) & ~nodes_ok
+        if np.any(partial):
+            bad = tuple(int(i) for i in np.argwhere(partial)[0])
+            raise GridError(f"node {self.node_params(bad)} has some non-finite fluxes")
+        object.__setattr__(self, "_present", nodes_ok)
+
+    # ------------------------------------------------------------------ description
+    @property
+    def bounds(self):
+        """``{axis: (low, high)}`` of the three parameter axes."""
+        return {ax: (float(getattr(self, ax)[0]), float(getattr(self, ax)[-1])) for ax in AXES}
+
+    @property
+    def holes(self):
+        """List of ``(teff, logg, mh)`` nodes the grid does not have."""
+        return [self.node_params(tuple(i)) for i in np.argwhere(~self._present)]
+
+    @property
+    def checksum(self):
+        return grid_checksum(self.teff, self.logg, self.mh, self.wave, self.log_flux)
+
+    def node_params(self, index):
+        i, j, k = index
+        return (float(self.teff[i]), float(self.logg[j]), float(self.mh[k]))
+
+    def describe(self):
+        """A few lines of text describing the grid (used by ``teffmc grid info``)."""
+        lines = [f"name: {self.name}"]
+        for ax, unit in zip(AXES, ("K", "dex", "dex")):
+            v = getattr(self, ax)
+            lines.append(f"{ax}: {v.size} nodes, {v[0]:g} .. {v[-1]:g} {unit}")
+        w = self.wave
+        rp = np.median(w[1:] / np.diff(w)) if w.size > 1 else float("nan")
+        lines.append(f"wave: {w.size} pixels, {w[0]:.1f} .. {w[-1]:.1f} Angstrom (vacuum), "
+                     f"median lambda/dlambda {rp:.0f}")
+        lines.append(f"models: {int(self._present.sum())} present, {len(self.holes)} holes")
+        lines.append(f"checksum: sha256:{self.checksum}")
+        lines += [f"provenance.{k}: {v}" for k, v in sorted(self.provenance.items())]
+        return "\n".join(lines)
+
+    # ------------------------------------------------------------------ interpolation
+    def _locate(self, name, x):
+        axis = getattr(self, name)
+        if axis.size == 1:
+            return np.zeros(x.shape, int), np.zeros(x.shape)
+        i = np.clip(np.searchsorted(axis, x, side="right") - 1, 0, axis.size - 2)
+        w = (x - axis[i]) / (axis[i + 1] - axis[i])
+        return i, w
+
+    def check_inside(self, teff, logg, mh):
+        """Boolean array: which points lie inside the axes and away from holes."""
+        teff, logg, mh = np.broadcast_arrays(*(np.asarray(v, float) for v in (teff, logg, mh)))
+        ok = np.ones(teff.shape, bool)
+        for ax, v in zip(AXES, (teff, logg, mh)):
+            lo, hi = self.bounds[ax]
+            ok &= (v >= lo) & (v <= hi)
+        if not self._present.all():
+            idx = [self._locate(ax, np.where(ok, v, getattr(self, ax)[0]))
+                   for ax, v in zip(AXES, (teff, logg, mh))]
+            for corner in np.ndindex(2, 2, 2):
+                sel = [np.minimum(i + c * (w > 0), getattr(self, ax).size - 1)
+                       for (i, w), c, ax in zip(idx, corner, AXES)]
+                ok &= self._present[tuple(sel)]
+        return ok
+
+    def interpolate_log(self, teff, logg, mh):
+        """log10 surface flux at a batch of points, shape (n, n_wave).
+
+        Raises
+        ------
+        OffGridError
+            If any point lies outside the grid or in a cell touching a hole.
+        """
+        teff, logg, mh = (np.atleast_1d(np.asarray(v, float)) for v in (teff, logg, mh))
+        teff, logg, mh = np.broadcast_arrays(teff, logg, mh)
+        inside = self.check_inside(teff, logg, mh)
+        if not inside.all():
+            k = int(np.argmin(inside))
+            point = {"teff": teff[k], "logg": logg[k], "mh": mh[k]}
+            raise OffGridError(point, self.bounds)
+        (i, wi), (j, wj), (k, wk) = (self._locate(a, v) for a, v in zip(AXES, (teff, logg, mh)))
+        nt, ng, nm = self.teff.size, self.logg.size, self.mh.size
+        out = np.zeros((teff.size, self.wave.size))
+        for a, b, c in np.ndindex(2, 2, 2):
+            w = (wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk)
+            if not np.any(w):
+                continue
+            node = self.log_flux[np.minimum(i + a, nt - 1), np.minimum(j + b, ng - 1),
+                                 np.minimum(k + c, nm - 1)]
+            out += w[:, None] * node
+        return out
+
+    def interpolate(self, teff, logg, mh):
+        """Surface F_lambda [erg s^-1 cm^-2 Angstrom^-1] at a batch of points, (n, n_wave)."""
+        return 10.0 ** self.interpolate_log(teff, logg, mh)
+
+    def spectrum(self, teff, logg=0.0, mh=0.0):
+        """One spectrum: ``(wave [Angstrom, vacuum], surface F_lambda)``."""
+        return self.wave.copy(), self.interpolate(teff, logg, mh)[0]
+
+    # ------------------------------------------------------------------ resampling
+    def on_pixels(self, wave, *, resolution=None, fwhm_A=None):
+        """A new grid on the pixels ``wave`` [Angstrom, vacuum].
+
+        The flux is convolved with a Gaussian line-spread function of resolving power
+        ``resolution`` (or FWHM ``fwhm_A``) and resampled, once for all nodes: this is
+        the per-run precomputation, so that sampling only interpolates on the pixels.
+        """
+        from ..observe.lsf import convolve_resample
+
+        wave = np.asarray(wave, float)
+        if wave[0] < self.wave[0] or wave[-1] > self.wave[-1]:
+            raise GridError(
+                f"grid {self.name!r} covers {self.wave[0]:.1f}-{self.wave[-1]:.1f} Angstrom "
+                f"but the data need {wave[0]:.1f}-{wave[-1]:.1f} Angstrom")
+        flux = np.where(self._present[..., None], 10.0 ** self.log_flux.astype(float), 1.0)
+        res = convolve_resample(self.wave, flux, wave, resolution=resolution, fwhm_A=fwhm_A)
+        log_res = np.where(self._present[..., None], np.log10(res), np.nan)
+        return Grid(self.teff, self.logg, self.mh, wave, log_res, self.provenance, self.name)
+
+    # ------------------------------------------------------------------ file I/O
+    def write(self, path):
+        """Write the grid to ``path`` (HDF5, gzip-compressed float32 flux)."""
+        import h5py
+
+        lf = np.asarray(self.log_flux, dtype="<f4")
+        with h5py.File(path, "w") as f:
+            f.attrs["format"] = FORMAT
+            f.attrs["format_version"] = FORMAT_VERSION
+            f.attrs["name"] = self.name
+            f.attrs["checksum"] = grid_checksum(self.teff, self.logg, self.mh, self.wave, lf)
+            for ax, unit in zip((*AXES, "wave"), ("K", "dex", "dex", "Angstrom (vacuum)")):
+                d = f.create_dataset(ax, data=np.asarray(getattr(self, ax), "<f8"))
+                d.attrs["units"] = unit
+            d = f.create_dataset("log_flux", data=lf, compression="gzip", compression_opts=6,
+                                 shuffle=True, chunks=(1, 1, 1, lf.shape[-1]))
+            d.attrs["units"] = "log10(erg s-1 cm-2 Angstrom-1), surface flux"
+            g = f.create_group("provenance")
+            for k, v in self.provenance.items():
+                g.attrs[k] = v
+
+    @classmethod
+    def read(cls, path):
+        """Read a grid file written by :meth:`write`, verifying its checksum."""
+        import h5py
+
+        try:
+            with h5py.File(path, "r") as f:
+                if f.attrs.get("format") != FORMAT:
+                    raise GridError(f"{path}: not a teffmc grid file (format attribute missing)")
+                arrays = {k: f[k][...] for k in (*AXES, "wave", "log_flux")}
+                prov = {k: str(v) for k, v in f["provenance"].attrs.items()}
+                name, checksum = str(f.attrs["name"]), str(f.attrs["checksum"])
+        except (OSError, KeyError) as exc:
+            raise GridError(f"{path}: cannot read grid file ({exc})") from None
+        grid = cls(**arrays, provenance=prov, name=name)
+        if grid_checksum(*(arrays[k] for k in (*AXES, "wave", "log_flux"))) != checksum:
+            raise GridError(f"{path}: checksum mismatch, the file is corrupt or was edited")
+        return grid
