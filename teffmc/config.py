@@ -1,0 +1,287 @@
+"""The run configuration: TOML into frozen dataclasses, validated.
+
+Every problem raises :class:`~teffmc.errors.ConfigError` naming the file, the key
+(dotted path, e.g. ``priors.teff.low``) and the bad value. Relative data paths are
+resolved against the folder of the config file.
+"""
+
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .errors import ConfigError
+from .priors import PRIOR_KINDS, Prior
+
+__all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_config",
+           "parse_config"]
+
+VEILS = ("none", "grey", "mie")
+DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "theta", "veil_scatter",
+                  "patch_dteff", "rv_kms", "jitter")
+
+
+@dataclass(frozen=True)
+class SpectrumSpec:
+    file: Path
+    air: bool = False
+    resolution: float | None = None
+    fwhm_A: float | None = None
+    wave_range: tuple | None = None
+    mask: tuple = ()
+    telluric_mask: bool = True
+    calibration_order: int = -1
+    calibration_sigma: float = 0.2
+    wave_unit: str | None = None
+    flux_unit: str | None = None
+
+
+@dataclass(frozen=True)
+class Epoch:
+    label: str
+    spectra: tuple = ()
+    photometry: Path | None = None
+
+
+@dataclass(frozen=True)
+class ModelSpec:
+    extinction_law: str = "CCM89"
+    veil: str = "none"
+    grain_material: str = "silicate"
+    grain_spread_dex: float = 0.1
+    scattering: bool = False
+    patches: bool = False
+    likelihood: str = "gaussian"
+
+
+@dataclass(frozen=True)
+class SamplerSpec:
+    n_walkers: int = 48
+    max_steps: int = 20000
+    min_steps: int = 1000
+    check_every: int = 500
+    seed: int = 1
+    n_starts: int = 16
+    checkpoint_every: int = 100
+
+
+@dataclass(frozen=True)
+class Config:
+    path: Path
+    name: str
+    grid: str
+    epochs: tuple
+    model: ModelSpec
+    priors: dict
+    shared: tuple
+    sampler: SamplerSpec
+    distance_pc: Prior | None = None
+    raw: dict = field(default_factory=dict, compare=False, repr=False)
+
+    @property
+    def multi_epoch(self):
+        return len(self.epochs) > 1
+
+
+class _Reader:
+    """Walks a TOML table, tracking the dotted key for error messages."""
+
+    def __init__(self, file, table, prefix=""):
+        self.file, self.table, self.prefix = file, table, prefix
+        self.used = set()
+
+    def key(self, k):
+        return f"{self.prefix}{k}"
+
+    def err(self, k, msg, value=None):
+        return ConfigError(msg, file=self.file, key=self.key(k), value=value)
+
+    def get(self, k, types, default=None, *, required=False):
+        self.used.add(k)
+        if k not in self.table:
+            if required:
+                raise self.err(k, "is required but missing")
+            return default
+        v = self.table[k]
+        if types is float and isinstance(v, int) and not isinstance(v, bool):
+            v = float(v)
+        if not isinstance(v, types) or (isinstance(v, bool) and types in (int, float)):
+            want = types.__name__ if isinstance(types, type) else "/".join(t.__name__ for t in types)
+            raise self.err(k, f"should be {want} but got {v!r}", v)
+        if isinstance(v, float) and not math.isfinite(v):
+            raise self.err(k, f"should be finite but got {v!r}", v)
+        return v
+
+    def positive(self, k, default=None, *, required=False):
+        v = self.get(k, float, default, required=required)
+        if v is not None and v <= 0:
+            raise self.err(k, f"should be > 0 but got {v!r}", v)
+        return v
+
+    def sub(self, k, *, required=False):
+        t = self.get(k, dict, None, required=required)
+        return None if t is None else _Reader(self.file, t, f"{self.key(k)}.")
+
+    def choice(self, k, allowed, default):
+        v = self.get(k, str, default)
+        if v not in allowed:
+            raise self.err(k, f"should be one of {', '.join(allowed)} but got {v!r}", v)
+        return v
+
+    def done(self):
+        extra = sorted(set(self.table) - self.used)
+        if extra:
+            raise self.err(extra[0], "unknown key", extra[0])
+
+    def path(self, k, base, *, required=False):
+        v = self.get(k, str, None, required=required)
+        if v is None:
+            return None
+        p = Path(v).expanduser()
+        p = p if p.is_absolute() else (base / p)
+        if not p.exists():
+            raise self.err(k, f"file not found: {p}", v)
+        return p
+
+
+def _prior(r: _Reader, k):
+    t = r.sub(k)
+    if t is None:
+        return None
+    if "fixed" in t.table:
+        v = t.get("fixed", float)
+        t.done()
+        return Prior("fixed", value=v)
+    kind = t.choice("dist", tuple(PRIOR_KINDS), None)
+    args = {a: t.get(a, float, required=True) for a in PRIOR_KINDS[kind]}
+    t.done()
+    try:
+        return Prior(kind, **args)
+    except ValueError as exc:
+        raise r.err(k, str(exc), args) from None
+
+
+def _spectrum(r: _Reader, base):
+    s = SpectrumSpec(
+        file=r.path("file", base, required=True),
+        air=r.get("air", bool, False),
+        resolution=r.positive("resolution"),
+        fwhm_A=r.positive("fwhm_A"),
+        wave_range=_range(r, "wave_range"),
+        mask=tuple(_range(r, f"mask[{i}]", v) for i, v in enumerate(r.get("mask", list, []))),
+        telluric_mask=r.get("telluric_mask", bool, True),
+        calibration_order=r.get("calibration_order", int, -1),
+        calibration_sigma=r.positive("calibration_sigma", 0.2),
+        wave_unit=r.get("wave_unit", str),
+        flux_unit=r.get("flux_unit", str),
+    )
+    if s.resolution is not None and s.fwhm_A is not None:
+        raise r.err("fwhm_A", "give resolution or fwhm_A, not both", s.fwhm_A)
+    if not -1 <= s.calibration_order <= 10:
+        raise r.err("calibration_order", f"should be in [-1, 10] but got {s.calibration_order}",
+                    s.calibration_order)
+    r.done()
+    return s
+
+
+def _range(r: _Reader, k, value=None):
+    v = r.get(k, list) if value is None else value
+    if v is None:
+        return None
+    ok = (isinstance(v, list) and len(v) == 2
+          and all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in v))
+    if not ok or not v[0] < v[1]:
+        raise r.err(k, f"should be [low, high] in Angstrom with low < high but got {v!r}", v)
+    return (float(v[0]), float(v[1]))
+
+
+def _epoch(r: _Reader, base, index):
+    label = r.get("label", str, "obs" if index == 0 else f"epoch{index + 1}")
+    if not label.isidentifier():
+        raise r.err("label", f"should be a simple name (letters, digits, _) but got {label!r}",
+                    label)
+    specs = r.get("spectra", list, [])
+    spectra = []
+    for i, t in enumerate(specs):
+        if not isinstance(t, dict):
+            raise r.err(f"spectra[{i}]", f"should be a table but got {t!r}", t)
+        spectra.append(_spectrum(_Reader(r.file, t, f"{r.key('spectra')}[{i}]."), base))
+    phot = r.path("photometry", base)
+    if not spectra and phot is None:
+        raise r.err("spectra", "an epoch needs at least one spectrum or a photometry file")
+    r.done()
+    return Epoch(label=label, spectra=tuple(spectra), photometry=phot)
+
+
+def parse_config(table, path="<config>"):
+    """Validate a parsed TOML table; ``path`` is used for messages and relative paths."""
+    path = Path(path)
+    base = path.parent if path.name else Path(".")
+    top = _Reader(str(path), table)
+    name = top.get("name", str, path.stem)
+    grid = top.get("grid", str, "builtin")
+    if grid not in ("builtin", "blackbody"):
+        gp = Path(grid).expanduser()
+        gp = gp if gp.is_absolute() else base / gp
+        if not gp.exists():
+            raise top.err("grid", f"grid file not found: {gp}", grid)
+        grid = str(gp)
+
+    m = top.sub("model") or _Reader(str(path), {}, "model.")
+    model = ModelSpec(
+        extinction_law=m.get("extinction_law", str, "CCM89"),
+        veil=m.choice("veil", VEILS, "none"),
+        grain_material=m.get("grain_material", str, "silicate"),
+        grain_spread_dex=m.get("grain_spread_dex", float, 0.1),
+        scattering=m.get("scattering", bool, False),
+        patches=m.get("patches", bool, False),
+        likelihood=m.choice("likelihood", ("gaussian", "student_t"), "gaussian"),
+    )
+    if not 0 <= model.grain_spread_dex <= 1:
+        raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
+                    model.grain_spread_dex)
+    m.done()
+
+    epochs_raw = top.get("epoch", list, None, required=True)
+    epochs = []
+    for i, t in enumerate(epochs_raw):
+        if not isinstance(t, dict):
+            raise top.err(f"epoch[{i}]", f"should be a table but got {t!r}", t)
+        epochs.append(_epoch(_Reader(str(path), t, f"epoch[{i}]."), base, i))
+    labels = [e.label for e in epochs]
+    if len(set(labels)) != len(labels):
+        raise top.err("epoch", f"epoch labels must be unique but got {labels}", labels)
+
+    shared = tuple(top.get("shared", list, list(DEFAULT_SHARED)))
+    for s in shared:
+        if not isinstance(s, str):
+            raise top.err("shared", f"should list parameter names but got {s!r}", s)
+
+    pr = top.sub("priors") or _Reader(str(path), {}, "priors.")
+    priors = {k: _prior(pr, k) for k in list(pr.table)}
+    pr.done()
+
+    s = top.sub("sampler") or _Reader(str(path), {}, "sampler.")
+    sampler = SamplerSpec(**{
+        k: s.get(k, int, getattr(SamplerSpec, k)) for k in SamplerSpec.__dataclass_fields__})
+    for k in ("n_walkers", "max_steps", "check_every", "n_starts", "checkpoint_every"):
+        if getattr(sampler, k) <= 0:
+            raise s.err(k, f"should be > 0 but got {getattr(sampler, k)}", getattr(sampler, k))
+    s.done()
+
+    distance = _prior(top, "distance_pc")
+    top.done()
+    return Config(path=path, name=name, grid=grid, epochs=tuple(epochs), model=model,
+                  priors=priors, shared=shared, sampler=sampler, distance_pc=distance, raw=table)
+
+
+def load_config(path):
+    """Read and validate a TOML config file."""
+    path = Path(path)
+    if not path.exists():
+        raise ConfigError(f"config file not found: {path}", file=str(path))
+    try:
+        table = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"not valid TOML ({exc})", file=str(path)) from None
+    return parse_config(table, path)

@@ -1,0 +1,98 @@
+"""Posterior density over the flat parameter vector, vectorised over walkers.
+
+Spectra: Gaussian (or Student-t) in flux with variance ``(jitter * err)^2``; with a
+calibration polynomial the likelihood is analytically marginalised over its
+coefficients (see :func:`teffmc.observe.calibration.marginal_loglike`).
+Photometry: Gaussian in magnitudes with the error and a systematic floor added in
+quadrature.
+"""
+
+import numpy as np
+
+from .errors import OffGridError
+
+__all__ = ["Posterior"]
+
+LOG_2PI = np.log(2.0 * np.pi)
+
+
+def _gauss(resid, var):
+    return -0.5 * (resid**2 / var + np.log(var) + LOG_2PI)
+
+
+class Posterior:
+    """log posterior = log prior + sum over epochs and channels of log likelihood.
+
+    Parameters
+    ----------
+    space : teffmc.parameters.ParameterSpace
+    channels : dict
+        ``{epoch_label: [channel, ...]}`` (see :mod:`teffmc.model`).
+    grid : photosphere used by the channels (to test grid bounds)
+    """
+
+    def __init__(self, space, channels, grid):
+        self.space, self.channels, self.grid = space, channels, grid
+
+    def _epoch_params(self, x, label):
+        return self.space.epoch_values(x, label)
+
+    def _inside(self, x):
+        ok = np.ones(x.shape[0], bool)
+        for label in self.channels:
+            p = self._epoch_params(x, label)
+            ok &= self.grid.check_inside(p["teff"], p["logg"], p["mh"])
+            if "patch_cover" in p:
+                ok &= self.grid.check_inside(p["teff"] - p["patch_dteff"], p["logg"], p["mh"])
+        return ok
+
+    def channel_loglike(self, ch, p, pointwise=False):
+        """Log-likelihood of one channel, (n,) or (n, n_points) when ``pointwise``."""
+        model = ch.predict(p)
+        if ch.kind == "photometry":
+            terms = _gauss(ch.data[None, :] - model, ch.err[None, :] ** 2)
+            return terms if pointwise else terms.sum(axis=1)
+        var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
+        if ch.basis is not None:
+            from .observe.calibration import marginal_loglike, calibration_mean
+
+            if not pointwise:
+                return marginal_loglike(ch.data, var, model, ch.basis,
+                                        np.full(ch.basis.shape[0], ch.calibration_sigma))
+            # Pointwise terms condition on the posterior-mean polynomial of each draw
+            # (the marginal likelihood does not split into independent pixels).
+            poly = calibration_mean(ch.data, var, model, ch.basis,
+                                    np.full(ch.basis.shape[0], ch.calibration_sigma))
+            model = model * (1.0 + poly)
+        terms = _gauss(ch.data[None, :] - model, var)
+        return terms if pointwise else terms.sum(axis=1)
+
+    def __call__(self, x):
+        x = np.atleast_2d(np.asarray(x, float))
+        lp = self.space.log_prior(x)
+        good = np.isfinite(lp)
+        good[good] = self._inside(x[good])
+        lp[~good] = -np.inf
+        if not good.any():
+            return lp
+        xg = x[good]
+        total = lp[good]
+        for label, chans in self.channels.items():
+            p = self._epoch_params(xg, label)
+            for ch in chans:
+                total = total + self.channel_loglike(ch, p)
+        total[~np.isfinite(total)] = -np.inf
+        lp[good] = total
+        return lp
+
+    def pointwise(self, x):
+        """``{"epoch/channel": (n, n_points)}`` pointwise log-likelihood terms."""
+        x = np.atleast_2d(np.asarray(x, float))
+        if not self._inside(x).all():
+            raise OffGridError({}, self.grid.bounds)
+        out = {}
+        for label, chans in self.channels.items():
+            p = self._epoch_params(x, label)
+            for ch in chans:
+                out[f"{label}/{ch.name}"] = self.channel_loglike(ch, p, pointwise=True)
+        return out

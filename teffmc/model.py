@@ -1,0 +1,156 @@
+"""The forward model: parameters -> predicted spectra and photometry.
+
+For every observed data set ("channel") everything that does not depend on the
+parameters is computed once: the photosphere grid convolved and resampled to the
+spectrum's pixels, the extinction curve and the veil's grain optics on those pixels,
+the filter weight matrices. One call then costs a grid interpolation and a few array
+products for the whole batch of walkers.
+
+Observed flux (Notes)::
+
+    F_obs(lambda) = (theta/2)^2 * F_surf(lambda) * 10^(-0.4 A_V k(lambda; R_V)) * V(lambda)
+
+with ``theta`` the angular diameter [rad], ``F_surf`` the surface flux of the
+photosphere (a two-temperature mix when cool patches are on), ``k = A_lambda/A_V``
+the interstellar law and ``V`` the circumstellar veil factor (1 without a veil).
+"""
+
+import numpy as np
+
+from .dust import ExtinctionTable, Veil
+
+__all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "SpectrumChannel", "PhotometryChannel"]
+
+MAS_TO_RAD = np.pi / (180.0 * 3600.0 * 1000.0)
+
+
+def surface_flux(grid, p):
+    """Surface flux (n, n_pix) of the photosphere for parameter arrays ``p``.
+
+    With cool patches, a fraction ``patch_cover`` of the disc has effective
+    temperature ``teff - patch_dteff`` (same log g and [M/H]); both components come
+    from the same grid.
+    """
+    f = grid.interpolate(p["teff"], p["logg"], p["mh"])
+    if "patch_cover" in p:
+        fc = grid.interpolate(p["teff"] - p["patch_dteff"], p["logg"], p["mh"])
+        c = p["patch_cover"][:, None]
+        f = (1.0 - c) * f + c * fc
+    return f
+
+
+class Dust:
+    """Interstellar extinction and the circumstellar veil tabulated on one wavelength set."""
+
+    def __init__(self, wave, model, r_v_prior):
+        lo, hi = r_v_prior.support
+        if r_v_prior.fixed:
+            self.ext = ExtinctionTable(model.extinction_law, wave, r_v=r_v_prior.value)
+        else:
+            self.ext = ExtinctionTable(model.extinction_law, wave, r_v_range=(lo, hi))
+        self.veil = None
+        if model.veil != "none":
+            self.veil = Veil(model.veil, wave, material=model.grain_material,
+                             spread_dex=model.grain_spread_dex, scattering=model.scattering)
+
+    def factor(self, p):
+        """Multiplicative dust factor (n, n_pix)."""
+        out = 10.0 ** (-0.4 * p["a_v"][:, None] * self.ext.curve(p["r_v"]))
+        if self.veil is not None:
+            n = p["a_v"].shape[0]
+            out = out * self.veil.factor(p["veil_tau"], p["veil_cover"],
+                                         p.get("grain_radius", np.ones(n)),
+                                         p.get("veil_scatter", np.zeros(n)))
+        return out
+
+
+def observed_flux(grid, dust, p):
+    """Model flux at Earth (n, n_pix) [erg s^-1 cm^-2 Angstrom^-1]."""
+    scale = (0.5 * p["theta"] * MAS_TO_RAD) ** 2
+    return scale[:, None] * surface_flux(grid, p) * dust.factor(p)
+
+
+class SpectrumChannel:
+    """One observed spectrum with its precomputed model pieces.
+
+    Parameters
+    ----------
+    spectrum : teffmc.observe.Spectrum
+        Wavelength [Angstrom, vacuum], flux, error and mask (True = use).
+    grid : Grid or BlackbodyGrid
+        Photosphere on its native pixels.
+    model : teffmc.config.ModelSpec
+    r_v_prior : teffmc.priors.Prior
+    resolution, fwhm_A : float, optional
+        Line-spread function of the instrument.
+    calibration_order : int
+        Order of the multiplicative Legendre calibration polynomial (-1 = none).
+    calibration_sigma : float
+        Prior standard deviation of its coefficients.
+    """
+
+    kind = "spectrum"
+
+    def __init__(self, spectrum, grid, model, r_v_prior, *, resolution=None, fwhm_A=None,
+                 calibration_order=-1, calibration_sigma=0.2, name="spectrum"):
+        use = np.asarray(spectrum.mask, bool)
+        self.name = name
+        self.wave = np.asarray(spectrum.wave, float)[use]
+        self.data = np.asarray(spectrum.flux, float)[use]
+        self.err = np.asarray(spectrum.err, float)[use]
+        full = grid.on_pixels(np.asarray(spectrum.wave, float), resolution=resolution,
+                              fwhm_A=fwhm_A)
+        self.grid = full.on_pixels(self.wave) if not use.all() else full
+        self.dust = Dust(self.wave, model, r_v_prior)
+        self.calibration_order = int(calibration_order)
+        self.calibration_sigma = float(calibration_sigma)
+        if self.calibration_order >= 0:
+            span = max(self.wave[-1] - self.wave[0], 1e-300)
+            x = 2.0 * (self.wave - self.wave[0]) / span - 1.0
+            self.basis = np.polynomial.legendre.legvander(x, self.calibration_order).T
+        else:
+            self.basis = None
+
+    @property
+    def n_points(self):
+        return self.wave.size
+
+    def predict(self, p):
+        """Model flux (n, n_pix) before the calibration polynomial."""
+        return observed_flux(self.grid, self.dust, p)
+
+
+class PhotometryChannel:
+    """Broad-band photometry with precomputed filter weight matrices.
+
+    The model is evaluated on the photosphere grid's own pixels over the span of the
+    filters; band fluxes are one matrix product for the whole batch.
+    """
+
+    kind = "photometry"
+
+    def __init__(self, photometry, grid, model, r_v_prior, name="photometry"):
+        from .observe import BandSet
+
+        self.name = name
+        self.bands = list(photometry.bands)
+        self.data = np.asarray(photometry.mags, float)
+        self.err = np.sqrt(np.asarray(photometry.errors, float) ** 2
+                           + np.asarray(photometry.floors, float) ** 2)
+        lo, hi = BandSet.wavelength_span(self.bands)
+        gw = grid.wave
+        sel = (gw >= lo) & (gw <= hi)
+        i0, i1 = max(np.argmax(sel) - 1, 0), min(len(gw) - np.argmax(sel[::-1]) + 1, len(gw))
+        self.wave = gw[i0:i1]
+        self.grid = grid.on_pixels(self.wave)
+        self.bandset = BandSet(self.bands, list(photometry.systems), self.wave,
+                               source=str(photometry.source))
+        self.dust = Dust(self.wave, model, r_v_prior)
+
+    @property
+    def n_points(self):
+        return len(self.bands)
+
+    def predict(self, p):
+        """Model magnitudes (n, n_band)."""
+        return self.bandset.mags(observed_flux(self.grid, self.dust, p))

@@ -1,0 +1,151 @@
+"""Which parameters a model has, their default priors, and the vector layout.
+
+A fit samples a flat vector per walker. :class:`ParameterSpace` maps that vector
+to named arrays per epoch: shared parameters have one column, per-epoch ones have
+one column per epoch (named ``name@label`` when there are several epochs); fixed
+parameters have no column.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import ConfigError
+from .priors import Prior
+
+__all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS"]
+
+UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
+         "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
+         "patch_cover": "", "patch_dteff": "K", "rv_kms": "km/s", "jitter": "",
+         "distance_pc": "pc"}
+LABELS = {"teff": r"$T_\mathrm{eff}$ [K]", "logg": r"$\log g$", "mh": "[M/H]",
+          "a_v": r"$A_V$", "r_v": r"$R_V$", "theta": r"$\theta$ [mas]",
+          "veil_tau": r"$\tau_\mathrm{veil}$", "veil_cover": r"$f_\mathrm{veil}$",
+          "grain_radius": r"$a$ [µm]", "veil_scatter": r"$s_\mathrm{veil}$",
+          "patch_cover": r"$f_\mathrm{patch}$", "patch_dteff": r"$\Delta T_\mathrm{patch}$",
+          "jitter": "jitter", "distance_pc": "d [pc]"}
+
+
+def model_parameters(model, grid_bounds):
+    """Names and default priors of the parameters of a model variant.
+
+    Parameters
+    ----------
+    model : teffmc.config.ModelSpec
+    grid_bounds : dict
+        ``{axis: (low, high)}`` of the photosphere grid.
+    """
+    t_lo, t_hi = grid_bounds["teff"]
+    g_lo, g_hi = grid_bounds["logg"]
+    m_lo, m_hi = grid_bounds["mh"]
+    p = {
+        "teff": Prior("uniform", low=t_lo, high=t_hi),
+        "logg": Prior("uniform", low=g_lo, high=g_hi),
+        "mh": Prior("uniform", low=m_lo, high=m_hi),
+        "theta": Prior("loguniform", low=1e-3, high=1e3),
+        "a_v": Prior("uniform", low=0.0, high=10.0),
+        "r_v": Prior("fixed", value=3.1),
+        "jitter": Prior("fixed", value=1.0),
+    }
+    if model.veil != "none":
+        p["veil_tau"] = Prior("uniform", low=0.0, high=5.0)
+        p["veil_cover"] = Prior("uniform", low=0.0, high=1.0)
+    if model.veil == "mie":
+        p["grain_radius"] = Prior("loguniform", low=0.02, high=5.0)
+        if model.scattering:
+            p["veil_scatter"] = Prior("uniform", low=0.0, high=1.0)
+    if model.patches:
+        p["patch_cover"] = Prior("uniform", low=0.0, high=0.9)
+        p["patch_dteff"] = Prior("uniform", low=0.0, high=1500.0)
+    return p
+
+
+@dataclass(frozen=True)
+class _Slot:
+    base: str
+    column: int | None   # None when fixed
+    value: float         # used when fixed
+
+
+class ParameterSpace:
+    """The mapping between a flat sampled vector and named per-epoch parameters."""
+
+    def __init__(self, config, grid_bounds):
+        defaults = model_parameters(config.model, grid_bounds)
+        file = str(config.path)
+        labels = [e.label for e in config.epochs]
+        priors = dict(defaults)
+        for key, prior in config.priors.items():
+            base, _, label = key.partition("@")
+            if base not in defaults:
+                raise ConfigError(f"not a parameter of this model (parameters: "
+                                  f"{', '.join(defaults)})", file=file, key=f"priors.{key}",
+                                  value=key)
+            if label and label not in labels:
+                raise ConfigError(f"no epoch labelled {label!r} (epochs: {', '.join(labels)})",
+                                  file=file, key=f"priors.{key}", value=key)
+            priors[key] = prior
+        for axis in ("teff", "logg", "mh"):
+            for key in [k for k in priors if k.partition("@")[0] == axis]:
+                lo, hi = priors[key].support
+                glo, ghi = grid_bounds[axis]
+                if lo < glo or hi > ghi:
+                    raise ConfigError(
+                        f"prior range [{lo:g}, {hi:g}] reaches outside the grid's "
+                        f"[{glo:g}, {ghi:g}]", file=file, key=f"priors.{key}", value=(lo, hi))
+        self.labels = labels
+        self.multi = len(labels) > 1
+        self.names, self.priors, self._slots = [], [], {}
+        for base in defaults:
+            per_epoch = self.multi and base not in config.shared
+            keys = [f"{base}@{lab}" for lab in labels] if per_epoch else [base]
+            for key, lab in zip(keys, labels if per_epoch else [None]):
+                prior = priors.get(key, priors[base])
+                slot = self._add(key, base, prior)
+                for label in ([lab] if lab else labels):
+                    self._slots[(label, base)] = slot
+        self.base_names = list(defaults)
+
+    def _add(self, key, base, prior):
+        if prior.fixed:
+            return _Slot(base, None, prior.value)
+        self.names.append(key)
+        self.priors.append(prior)
+        return _Slot(base, len(self.names) - 1, np.nan)
+
+    @property
+    def ndim(self):
+        return len(self.names)
+
+    def log_prior(self, x):
+        """Sum of log prior densities, shape (n,)."""
+        x = np.atleast_2d(x)
+        lp = np.zeros(x.shape[0])
+        for i, pr in enumerate(self.priors):
+            lp += pr.logpdf(x[:, i])
+        return lp
+
+    def sample_prior(self, rng, n):
+        return np.column_stack([pr.sample(rng, n) for pr in self.priors])
+
+    def epoch_values(self, x, label):
+        """``{base_name: array (n,)}`` for one epoch."""
+        x = np.atleast_2d(x)
+        out = {}
+        for base in self.base_names:
+            slot = self._slots[(label, base)]
+            out[base] = (x[:, slot.column] if slot.column is not None
+                         else np.full(x.shape[0], slot.value))
+        return out
+
+    def fixed_values(self):
+        """``{name: value}`` of the parameters held fixed (for the run record)."""
+        out = {}
+        for (label, base), slot in self._slots.items():
+            if slot.column is None:
+                out[base if not self.multi else f"{base}@{label}"] = slot.value
+        return out
+
+    def priors_dict(self):
+        return {n: p.to_dict() for n, p in zip(self.names, self.priors)}

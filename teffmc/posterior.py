@@ -1,0 +1,116 @@
+"""Posterior storage and summaries. The ONLY module that imports arviz.
+
+A run's posterior is an ArviZ DataTree saved as netCDF (``posterior.nc``) with the
+groups ``posterior`` (sampled and derived quantities; walkers are the ``chain``
+dimension, as usual for ensemble samplers), ``sample_stats`` (log-probability,
+acceptance fraction), ``log_likelihood`` (pointwise terms per data set, for
+PSIS-LOO), ``observed_data`` and ``posterior_predictive`` (thinned model spectra
+and magnitudes). Root attributes hold the resolved config, package versions, seed,
+grid checksum and the convergence verdict.
+"""
+
+import json
+
+import numpy as np
+
+__all__ = ["build", "save", "load", "summarise", "draws", "loo"]
+
+
+def _to_chain_draw(a):
+    """(n_draws, n_walkers, ...) -> (n_walkers, n_draws, ...)"""
+    return np.swapaxes(np.asarray(a), 0, 1)
+
+
+def build(result, *, derived, pointwise, observed, predictive, attrs):
+    """Assemble the DataTree.
+
+    Parameters
+    ----------
+    result : teffmc.sample.SampleResult
+        ``chain`` of shape (n_draws, n_walkers, ndim).
+    derived : dict
+        ``{name: (n_draws, n_walkers)}`` derived quantities.
+    pointwise, predictive : dict
+        ``{name: (n_draws, n_walkers, n_points)}``.
+    observed : dict
+        ``{name: (n_points,)}``, same names as ``pointwise``.
+    attrs : dict
+        Root attributes (strings or numbers).
+    """
+    import arviz as az
+
+    post = {n: _to_chain_draw(result.chain[..., i]) for i, n in enumerate(result.names)}
+    post.update({n: _to_chain_draw(v) for n, v in derived.items()})
+    dims = {}
+    for name, arr in observed.items():
+        dims[name] = [f"{name}_point"]
+    data = {
+        "posterior": post,
+        "sample_stats": {"lp": _to_chain_draw(result.log_prob)},
+        "log_likelihood": {n: _to_chain_draw(v) for n, v in pointwise.items()},
+        "observed_data": {n: np.asarray(v) for n, v in observed.items()},
+        "posterior_predictive": {n: _to_chain_draw(v) for n, v in predictive.items()},
+    }
+    dt = az.from_dict(data, dims=dims)
+    dt["sample_stats"].ds["acceptance_fraction"] = ("chain", np.asarray(
+        result.acceptance_fraction))
+    for k, v in attrs.items():
+        dt.attrs[k] = v if isinstance(v, (str, int, float)) else json.dumps(v)
+    dt.attrs["sampled_names"] = json.dumps(list(result.names))
+    dt.attrs["derived_names"] = json.dumps(list(derived))
+    return dt
+
+
+def save(dt, path):
+    dt.to_netcdf(str(path), engine="h5netcdf")
+
+
+def load(path):
+    import arviz as az
+
+    return az.from_netcdf(str(path), engine="h5netcdf")
+
+
+def draws(dt, name, group="posterior"):
+    """All draws of one variable as a flat array (n_walkers * n_draws, ...)."""
+    v = dt[group].ds[name].values
+    return v.reshape(-1, *v.shape[2:])
+
+
+def summarise(dt, names):
+    """``{name: {median, p16, p84, mean, sd, r_hat, ess_bulk, ess_tail}}``."""
+    import arviz as az
+
+    post = dt["posterior"].ds[list(names)]
+    rhat = az.rhat(post)
+    ess_b = az.ess(post, method="bulk")
+    ess_t = az.ess(post, method="tail")
+    out = {}
+    for n in names:
+        x = post[n].values.ravel()
+        p16, p50, p84 = np.percentile(x, [16, 50, 84])
+        out[n] = {"median": float(p50), "p16": float(p16), "p84": float(p84),
+                  "mean": float(x.mean()), "sd": float(x.std(ddof=1)),
+                  "r_hat": float(rhat[n].values), "ess_bulk": float(ess_b[n].values),
+                  "ess_tail": float(ess_t[n].values)}
+    return out
+
+
+def _joint_loglik(dt):
+    """All pointwise log-likelihood terms of a run concatenated into one variable."""
+    import arviz as az
+
+    ll = dt["log_likelihood"].ds
+    parts = [ll[v].values.reshape(ll[v].shape[0], ll[v].shape[1], -1) for v in ll.data_vars]
+    joint = np.concatenate(parts, axis=-1)
+    return az.from_dict({"posterior": {"_": joint[..., 0]}, "log_likelihood": {"all": joint}},
+                        dims={"all": ["point"]})
+
+
+def loo(dt):
+    """PSIS-LOO over every data point of a run: (elpd, se, pointwise elpd, pareto k)."""
+    import arviz as az
+
+    res = az.loo(_joint_loglik(dt), pointwise=True, var_name="all")
+    return (float(res.elpd), float(res.se), np.asarray(res.elpd_i).ravel(),
+            np.asarray(res.pareto_k).ravel())
