@@ -1,0 +1,24 @@
+"""Observations: spectra, photometry, air/vacuum, line-spread, filters, calibration.
+
+Everything here works in vacuum Angstrom and F_lambda [erg s^-1 cm^-2 A^-1].
+"""
+
+from teffmc.observe.airvac import air_to_vacuum, refractive_index_air, vacuum_to_air
+from teffmc.observe.spectrum import (
+    TELLURIC_BANDS,
+    Spectrum,
+    apply_masks,
+    from_specutils,
+    read_spectrum,
+)
+
+__all__ = [
+    "air_to_vacuum",
+    "vacuum_to_air",
+    "refractive_index_air",
+    "Spectrum",
+    "read_spectrum",
+    "from_specutils",
+    "apply_masks",
+    "TELLURIC_BANDS",
+]

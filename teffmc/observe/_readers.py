@@ -1,0 +1,196 @@
+"""File readers for 1-D spectra. Each returns raw columns and units as found.
+
+The returned dict has keys ``wave, flux, err, use`` (arrays or None),
+``wave_unit, flux_unit, err_unit`` (str, Unit or None), ``medium``
+("air", "vacuum" or None when the file does not say) and ``names``
+(``{role: column label}`` for error messages).
+"""
+
+import numpy as np
+from astropy.io import fits
+
+from teffmc.errors import DataError
+from teffmc.observe._text import read_text_table, to_float
+
+__all__ = ["read_raw"]
+
+# Column names recognised by default, per role (case-insensitive).
+_DEFAULT_NAMES = {
+    "wave": ("wavelength", "wave", "lambda", "lam", "wl"),
+    "flux": ("flux", "flam", "f_lambda", "flambda", "fnu", "f_nu"),
+    "err": ("err", "error", "flux_err", "flux_error", "sigma", "uncertainty", "unc",
+            "e_flux", "staterror"),
+    "use": ("use", "good"),
+}
+_ERR_HDUS = ("ERR", "ERROR", "SIGMA", "UNCERT", "UNCERTAINTY", "STDDEV")
+_FITS_SUFFIXES = (".fits", ".fit", ".fts", ".fits.gz", ".fit.gz")
+
+
+def _medium_from_text(value, path, column):
+    text = str(value).strip().lower()
+    if text in ("air", "awav"):
+        return "air"
+    if text in ("vacuum", "vac", "wave"):
+        return "vacuum"
+    raise DataError(f"medium should be 'air' or 'vacuum' but got {value!r}",
+                    file=path, column=column, value=value)
+
+
+def _pick_columns(names, columns, path):
+    """Map roles to column names, from ``columns`` or the default names."""
+    if columns is not None and not isinstance(columns, dict):
+        columns = dict(zip(("wave", "flux", "err", "use"), columns))
+    lower = {n.lower(): n for n in names}
+    chosen = {}
+    for role, defaults in _DEFAULT_NAMES.items():
+        if columns is not None and role in columns:
+            want = columns[role]
+            if want not in names:
+                raise DataError(f"no column {want!r} (columns are {list(names)})",
+                                file=path, column=want, value=want)
+            chosen[role] = want
+        else:
+            found = [lower[d] for d in defaults if d in lower]
+            if found:
+                chosen[role] = found[0]
+            elif names[0] == "col1" and role != "use":
+                position = ("wave", "flux", "err").index(role)
+                if position < len(names):
+                    chosen[role] = names[position]
+    for role in ("wave", "flux", "err"):
+        if role not in chosen:
+            raise DataError(
+                f"no {role} column found among {list(names)}; name it with columns={{'{role}': ...}}",
+                file=path, column=role,
+            )
+    return chosen
+
+
+def _wcs_wavelengths(header, n, path):
+    """Pixel -> wavelength from CRVAL1/CDELT1(CD1_1)/CRPIX1, linear or log."""
+    if "CRVAL1" not in header:
+        raise DataError("1-D image without CRVAL1 (no spectral WCS)", file=path, column="CRVAL1")
+    crval = float(header["CRVAL1"])
+    cdelt = float(header.get("CDELT1", header.get("CD1_1", np.nan)))
+    if not np.isfinite(cdelt) or cdelt == 0:
+        raise DataError(f"CDELT1/CD1_1 should be non-zero but got {cdelt}",
+                        file=path, column="CDELT1", value=cdelt)
+    offset = np.arange(1, n + 1) - float(header.get("CRPIX1", 1.0))  # FITS pixels are 1-based
+    ctype = str(header.get("CTYPE1", "")).strip().upper()
+    if ctype.endswith("-LOG"):
+        # Greisen et al. 2006, A&A 446, 747 (FITS paper III), eq. 5
+        return crval * np.exp(cdelt * offset / crval)
+    if int(header.get("DC-FLAG", 0)) == 1:
+        # log10-linear dispersion (IRAF convention, from memory)
+        return 10.0 ** (crval + cdelt * offset)
+    return crval + cdelt * offset
+
+
+def _read_fits_image(hdul, index, path):
+    hdu = hdul[index]
+    header = hdu.header
+    flux = np.asarray(hdu.data, dtype=float)
+    if flux.ndim != 1:
+        raise DataError(f"image HDU {index} should be 1-D but has shape {flux.shape}",
+                        file=path, column=f"HDU{index}", value=flux.shape)
+    ctype = str(header.get("CTYPE1", "")).strip().upper()
+    medium = {"AWAV": "air", "WAVE": "vacuum"}.get(ctype.split("-")[0]) if ctype else None
+    err, err_unit, err_label = None, None, None
+    names = [h.name.upper() for h in hdul]
+    for label in _ERR_HDUS + ("IVAR", "VAR", "VARIANCE"):
+        if label in names:
+            ehdu = hdul[names.index(label)]
+            err = np.asarray(ehdu.data, dtype=float)
+            if label == "IVAR":
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    # ivar = 0 flags a bad pixel: infinite error, masked later
+                    err = np.where(err >= 0, 1.0 / np.sqrt(err), -1.0)
+            elif label in ("VAR", "VARIANCE"):
+                err = np.where(err >= 0, np.sqrt(np.abs(err)), -1.0)
+            err_unit = ehdu.header.get("BUNIT") if label not in ("IVAR", "VAR", "VARIANCE") else None
+            err_label = label
+            break
+    if err is None:
+        raise DataError(f"no error extension (one of {', '.join(_ERR_HDUS + ('IVAR', 'VAR'))})",
+                        file=path, column="err")
+    return {
+        "wave": _wcs_wavelengths(header, flux.size, path), "flux": flux, "err": err,
+        "use": None, "wave_unit": header.get("CUNIT1"), "flux_unit": header.get("BUNIT"),
+        "err_unit": err_unit, "medium": medium,
+        "names": {"wave": "CTYPE1", "flux": hdu.name or f"HDU{index}", "err": err_label},
+    }
+
+
+def _read_fits_table(hdu, path, columns):
+    names = list(hdu.columns.names)
+    chosen = _pick_columns(names, columns, path)
+    raw = {role: np.asarray(hdu.data[name]) for role, name in chosen.items()}
+    units = {role: hdu.columns[name].unit for role, name in chosen.items()}
+    medium = hdu.header.get("MEDIUM")
+    return _assemble(raw, units, chosen, medium, path)
+
+
+def _assemble(raw, units, chosen, medium, path):
+    use = raw.get("use")
+    return {
+        "wave": np.asarray(raw["wave"], dtype=float), "flux": np.asarray(raw["flux"], dtype=float),
+        "err": np.asarray(raw["err"], dtype=float),
+        "use": None if use is None else np.asarray(use).astype(bool),
+        "wave_unit": units.get("wave"), "flux_unit": units.get("flux"),
+        "err_unit": units.get("err"),
+        "medium": None if medium is None else _medium_from_text(medium, path, "medium"),
+        "names": dict(chosen),
+    }
+
+
+def _read_fits(path, columns):
+    with fits.open(path, memmap=False) as hdul:
+        for index, hdu in enumerate(hdul):
+            if hdu.data is None or getattr(hdu.data, "size", 0) == 0:
+                continue
+            if isinstance(hdu, fits.BinTableHDU):
+                return _read_fits_table(hdu, path, columns)
+            if isinstance(hdu, (fits.PrimaryHDU, fits.ImageHDU)):
+                return _read_fits_image(hdul, index, path)
+    raise DataError("no image or table HDU with data", file=path)
+
+
+def _read_ecsv(path, columns):
+    from astropy.table import Table
+
+    table = Table.read(path, format="ascii.ecsv")
+    chosen = _pick_columns(table.colnames, columns, path)
+    raw, units = {}, {}
+    for role, name in chosen.items():
+        col = table[name]
+        raw[role] = np.ma.filled(np.ma.asarray(col, dtype=float), np.nan) if role != "use" \
+            else np.asarray(col)
+        units[role] = col.unit
+    medium = table.meta.get("medium")
+    return _assemble(raw, units, chosen, medium, path)
+
+
+def _read_text(path, columns):
+    names, units, cols, meta = read_text_table(path)
+    chosen = _pick_columns(names, columns, path)
+    raw = {}
+    for role, name in chosen.items():
+        values = to_float(cols[name], file=path, column=name)
+        raw[role] = values != 0 if role == "use" else values
+    role_units = {role: units.get(name, meta.get(f"{role}_unit")) for role, name in chosen.items()}
+    return _assemble(raw, role_units, chosen, meta.get("medium"), path)
+
+
+def read_raw(path, columns=None):
+    """Read a spectrum file into raw arrays, dispatching on the file name."""
+    name = str(path).lower()
+    try:
+        if name.endswith(_FITS_SUFFIXES):
+            return _read_fits(path, columns)
+        if name.endswith(".ecsv"):
+            return _read_ecsv(path, columns)
+        return _read_text(path, columns)
+    except FileNotFoundError:
+        raise DataError("file not found", file=path) from None
+    except OSError as exc:
+        raise DataError(f"cannot read file: {exc}", file=path) from None
