@@ -107,6 +107,13 @@ class ParameterSpace:
                     self._slots[(label, base)] = slot
         self.base_names = list(defaults)
 
+    def prior_of(self, base):
+        """The prior of a base parameter (of the first epoch when it is per-epoch)."""
+        slot = self._slots[(self.labels[0], base)]
+        if slot.column is None:
+            return Prior("fixed", value=slot.value)
+        return self.priors[slot.column]
+
     def _add(self, key, base, prior):
         if prior.fixed:
             return _Slot(base, None, prior.value)

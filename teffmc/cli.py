@@ -1,0 +1,130 @@
+"""Command line: ``teffmc demo | fit | compare | report | grid``.
+
+Exit codes: 0 success; 2 bad input (one line naming file, key or column, and the
+value; no traceback); 1 internal error.
+"""
+
+import argparse
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import TeffmcError
+
+__all__ = ["main"]
+
+
+def _cmd_fit(args):
+    from .run import fit, summary_to_text
+
+    res = fit(args.config, args.out, resume=args.resume, quiet=args.quiet)
+    print(summary_to_text(res.summary))
+    print(f"run folder: {res.out}")
+    return 0
+
+
+def _cmd_demo(args):
+    from .demo import run_demo
+
+    return run_demo(Path(args.out), quiet=args.quiet)
+
+
+def _cmd_report(args):
+    from .rereport import redraw
+
+    redraw(Path(args.run_dir))
+    print(f"figures and tables redrawn in {args.run_dir}")
+    return 0
+
+
+def _cmd_compare(args):
+    from .compare import compare_runs
+
+    res = compare_runs([Path(d) for d in args.run_dirs], Path(args.out) if args.out else None)
+    print(res.text)
+    return 0
+
+
+def _cmd_grid(args):
+    from .photosphere import load_grid
+
+    if args.grid_cmd == "info":
+        print(load_grid(args.file).describe())
+        return 0
+    if args.grid_cmd == "build":
+        from .photosphere.synth import build_grid
+
+        build_grid(args.out, workers=args.workers)
+        print(load_grid(args.out).describe())
+        return 0
+    from .photosphere.importer import import_grid
+
+    grid = import_grid(Path(args.folder), Path(args.table), air=args.air,
+                       flux_unit=args.flux_unit, wave_unit=args.wave_unit)
+    grid.write(args.out)
+    print(grid.describe())
+    return 0
+
+
+def build_parser():
+    p = argparse.ArgumentParser(prog="teffmc", description=(
+        "Effective temperature of a cool star with honest uncertainties, jointly with "
+        "interstellar extinction and a circumstellar dust veil."))
+    p.add_argument("--version", action="version", version=f"teffmc {__version__}")
+    sub = p.add_subparsers(dest="command", required=True)
+
+    d = sub.add_parser("demo", help="make the invented demo star's data and fit it")
+    d.add_argument("--out", default="teffmc-demo", help="folder for the demo (default: %(default)s)")
+    d.add_argument("--quiet", action="store_true", help="no progress output")
+    d.set_defaults(func=_cmd_demo)
+
+    f = sub.add_parser("fit", help="fit the data described by a TOML config file")
+    f.add_argument("config", help="TOML config file")
+    f.add_argument("--out", help="run folder (default: run-<config name> beside the config)")
+    f.add_argument("--resume", action="store_true", help="continue an interrupted run")
+    f.add_argument("--quiet", action="store_true", help="no progress bar or log lines")
+    f.set_defaults(func=_cmd_fit)
+
+    c = sub.add_parser("compare", help="compare hypotheses fitted to the same data")
+    c.add_argument("run_dirs", nargs="+", help="run folders written by `teffmc fit`")
+    c.add_argument("--out", help="folder for compare.json, compare.ecsv, compare.png")
+    c.set_defaults(func=_cmd_compare)
+
+    r = sub.add_parser("report", help="redraw figures and tables of a finished run")
+    r.add_argument("run_dir")
+    r.set_defaults(func=_cmd_report)
+
+    g = sub.add_parser("grid", help="build, import or describe a photosphere grid")
+    gs = g.add_subparsers(dest="grid_cmd", required=True)
+    gi = gs.add_parser("info", help="describe a grid file")
+    gi.add_argument("file", nargs="?", default="builtin",
+                    help="grid file, 'builtin' or 'blackbody' (default: builtin)")
+    gb = gs.add_parser("build", help="compute the built-in grid with teffmc's LTE synthesis")
+    gb.add_argument("--out", required=True, help="output grid file (.h5)")
+    gb.add_argument("--workers", type=int, default=2, help="processes (default: %(default)s)")
+    gm = gs.add_parser("import", help="make a grid file from a folder of model spectra")
+    gm.add_argument("folder", help="folder holding the spectra (FITS or text tables)")
+    gm.add_argument("table", help="table (ECSV/CSV) with columns file, teff, logg, mh")
+    gm.add_argument("--out", required=True, help="output grid file (.h5)")
+    gm.add_argument("--air", action="store_true", help="wavelengths are in air")
+    gm.add_argument("--wave-unit", help="wavelength unit when the files do not say")
+    gm.add_argument("--flux-unit", help="flux-density unit when the files do not say")
+    g.set_defaults(func=_cmd_grid)
+    return p
+
+
+def main(argv=None):
+    args = build_parser().parse_args(argv)
+    try:
+        return args.func(args)
+    except TeffmcError as exc:
+        msg = " ".join(str(exc).split())
+        print(f"teffmc: error: {msg}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("teffmc: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

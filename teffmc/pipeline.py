@@ -1,0 +1,203 @@
+"""The stages of a fit after preparation: sampling, derived quantities, outputs."""
+
+import json
+import platform
+import sys
+from importlib import metadata
+
+import numpy as np
+
+from . import __version__
+from . import posterior as post_mod
+from .derived import bolometric
+from .model import Dust, observed_flux
+from .report import corner_figure, fit_figure, write_summary
+from .tomlout import dumps_toml
+
+__all__ = ["sample_posterior", "finish_run", "derived_quantities", "VBand"]
+
+CHUNK = 512
+CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synthesis; "
+                "for publication-grade temperatures import a validated model grid.")
+
+
+def sample_posterior(prep, checkpoint, *, resume, quiet, log):
+    """Optimised start, then emcee until converged or out of steps."""
+    from .sample import find_start, initial_ball, run_sampler
+
+    s = prep.config.sampler
+    rng = np.random.default_rng(s.seed)
+    x0 = None
+    if not resume:
+        x0 = find_start(prep.log_post, prep.space.sample_prior, n_starts=s.n_starts, rng=rng)
+        log("start: " + ", ".join(f"{n}={v:.4g}" for n, v in zip(prep.space.names, x0)))
+        x0 = initial_ball(x0, rng, s.n_walkers, prep.log_post, scale=1e-3)
+    return run_sampler(prep.log_post, x0, names=prep.space.names, n_walkers=s.n_walkers,
+                       seed=s.seed, max_steps=s.max_steps, min_steps=s.min_steps,
+                       check_every=s.check_every, checkpoint=checkpoint, resume=resume,
+                       progress=not quiet, log=log)
+
+
+class VBand:
+    """Model Bessell V (Vega system) at Earth for a batch of parameters, on one epoch."""
+
+    def __init__(self, grid, model, r_v_prior):
+        from .observe import BandSet
+
+        lo, hi = BandSet.wavelength_span(["bessell-V"])
+        sel = np.flatnonzero((grid.wave >= lo) & (grid.wave <= hi))
+        wave = grid.wave[max(sel[0] - 1, 0): sel[-1] + 2]
+        self.grid = grid.on_pixels(wave)
+        self.dust = Dust(wave, model, r_v_prior)
+        self.bands = BandSet(["bessell-V"], ["vega"], wave)
+
+    def __call__(self, p):
+        return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
+
+
+def _chunked(fn, flat):
+    parts = [fn(flat[i:i + CHUNK]) for i in range(0, flat.shape[0], CHUNK)]
+    if isinstance(parts[0], dict):
+        return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
+    return np.concatenate(parts)
+
+
+def derived_quantities(prep, flat, rng):
+    """``{name: (n,)}`` derived quantities on every draw in ``flat`` (n, ndim)."""
+    cfg, space = prep.config, prep.space
+    dist = None
+    if cfg.distance_pc is not None:
+        dist = cfg.distance_pc.sample(rng, flat.shape[0]) if not cfg.distance_pc.fixed else \
+            np.full(flat.shape[0], cfg.distance_pc.value)
+    vband = VBand(prep.grid, cfg.model, space.prior_of("r_v"))
+    out = {}
+    for label in space.labels:
+        suffix = f"@{label}" if space.multi else ""
+        p = space.epoch_values(flat, label)
+        for k, v in bolometric(p, dist).items():
+            out[k + suffix] = v
+        out["v_mag" + suffix] = _chunked(lambda x: vband(space.epoch_values(x, label)), flat)
+    if dist is not None:
+        out["distance_pc"] = dist
+    return out
+
+
+def _versions():
+    out = {"python": platform.python_version(), "teffmc": __version__}
+    for pkg in ("numpy", "scipy", "astropy", "emcee", "arviz", "dust_extinction", "speclite",
+                "miepython", "matplotlib"):
+        try:
+            out[pkg] = metadata.version(pkg)
+        except metadata.PackageNotFoundError:
+            out[pkg] = "not installed"
+    return out
+
+
+def _panels(prep, predictive):
+    panels = []
+    for label, chans in prep.channels.items():
+        for ch in chans:
+            key = f"{label}/{ch.name}"
+            draws = predictive[key].reshape(-1, ch.n_points)
+            pan = {"kind": ch.kind, "label": f"epoch {label}: {ch.name}", "data": ch.data,
+                   "err": ch.err, "draws": draws}
+            if ch.kind == "spectrum":
+                pan["x"] = ch.wave
+            else:
+                pan["x"], pan["bands"] = ch.bandset.effective_wavelengths, ch.bands
+            panels.append(pan)
+    return panels
+
+
+def _predict(prep, x):
+    """Model predictions (calibration polynomial applied) per channel for draws x."""
+    from .observe.calibration import calibration_mean
+
+    out = {}
+    for label, chans in prep.channels.items():
+        p = prep.space.epoch_values(x, label)
+        for ch in chans:
+            m = ch.predict(p)
+            if ch.kind == "spectrum" and ch.basis is not None:
+                var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
+                m = m * (1.0 + calibration_mean(ch.data, var, m, ch.basis,
+                                                np.full(ch.basis.shape[0],
+                                                        ch.calibration_sigma)))
+            out[f"{label}/{ch.name}"] = m
+    return out
+
+
+def finish_run(prep, result, folder, *, log):
+    """Derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
+    cfg, space = prep.config, prep.space
+    n_draws, n_walkers, ndim = result.chain.shape
+    flat = result.chain.reshape(-1, ndim)
+    rng = np.random.default_rng(cfg.sampler.seed + 1)
+    log(f"derived quantities on {flat.shape[0]} draws")
+    derived = {k: v.reshape(n_draws, n_walkers)
+               for k, v in derived_quantities(prep, flat, rng).items()}
+    pointwise = _chunked(prep.log_post.pointwise, flat)
+    pointwise = {k: v.reshape(n_draws, n_walkers, -1).astype(np.float32)
+                 for k, v in pointwise.items()}
+    sub = result.chain[-min(n_draws, 4):]
+    predictive = {k: v.reshape(sub.shape[0], n_walkers, -1)
+                  for k, v in _predict(prep, sub.reshape(-1, ndim)).items()}
+    observed = {f"{label}/{ch.name}": ch.data
+                for label, chans in prep.channels.items() for ch in chans}
+    grid_checksum = prep.grid.checksum
+    record = {
+        "teffmc": {"version": __version__, "seed": cfg.sampler.seed,
+                   "grid": cfg.grid, "grid_checksum": grid_checksum,
+                   "command": " ".join(sys.argv), "versions": _versions(),
+                   "free_parameters": list(space.names), "fixed": space.fixed_values(),
+                   "priors": space.priors_dict(), "data_checksum": data_checksum(prep)},
+        **cfg.raw,
+    }
+    attrs = {"config": dumps_toml(record), "seed": cfg.sampler.seed,
+             "grid_checksum": grid_checksum, "versions": _versions(),
+             "converged": int(result.converged), "reason": result.reason,
+             "data_checksum": data_checksum(prep), "model": json.dumps(vars(cfg.model))}
+    dt = post_mod.build(result, derived=derived, pointwise=pointwise, observed=observed,
+                        predictive=predictive, attrs=attrs)
+    post_mod.save(dt, folder / "posterior.nc")
+    summary = {
+        "converged": bool(result.converged),
+        "reason": result.reason,
+        "n_steps": int(result.n_steps), "n_walkers": int(n_walkers),
+        "burn": int(result.burn), "thin": int(result.thin),
+        "acceptance_fraction": float(np.mean(result.acceptance_fraction)),
+        "tau": {n: float(t) for n, t in zip(space.names, result.tau)},
+        "parameters": post_mod.summarise(dt, space.names),
+        "derived": post_mod.summarise(dt, list(derived)),
+        "fixed": space.fixed_values(),
+        "epochs": list(space.labels),
+        "grid": {"name": cfg.grid, "checksum": grid_checksum},
+        "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
+        + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
+    }
+    write_summary(summary, folder / "summary.json", folder / "summary.ecsv")
+    (folder / "run.toml").write_text(dumps_toml(record), encoding="utf-8")
+    log("figures")
+    corner_figure(flat, space.names, folder / "corner.png", converged=result.converged,
+                  title=cfg.name)
+    fit_figure(_panels(prep, predictive), folder / "fit.png", converged=result.converged,
+               title=cfg.name)
+    for c in summary["cautions"]:
+        log("CAUTION: " + c)
+    log(f"done: {folder.name.removesuffix('.partial')}")
+    (folder / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
+    return dt, summary
+
+
+def data_checksum(prep):
+    """SHA-256 of the data actually fitted (pixels, fluxes, errors, bands)."""
+    import hashlib
+
+    h = hashlib.sha256()
+    for label, chans in prep.channels.items():
+        h.update(label.encode())
+        for ch in chans:
+            h.update(ch.name.encode())
+            for a in (ch.data, ch.err, getattr(ch, "wave", np.zeros(0))):
+                h.update(np.ascontiguousarray(a, "<f8").tobytes())
+    return h.hexdigest()

@@ -1,0 +1,156 @@
+"""The main job: config file -> posterior -> run folder.
+
+Everything the user gave is read and validated before anything is written, so bad
+input leaves nothing behind. The run is built in ``OUT.partial/`` (which also holds
+the sampler checkpoint for ``--resume``) and renamed to ``OUT`` when complete.
+"""
+
+import json
+import shutil
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .config import load_config
+from .errors import ConfigError
+from .likelihood import Posterior
+from .model import PhotometryChannel, SpectrumChannel
+from .parameters import ParameterSpace
+
+__all__ = ["fit", "FitResult", "prepare", "Prepared"]
+
+RUN_FILES = ("posterior.nc", "summary.json", "summary.ecsv", "run.toml", "corner.png",
+             "fit.png", "log.txt")
+
+
+@dataclass
+class FitResult:
+    """What :func:`fit` returns: ``summary`` (dict as summary.json), ``posterior``
+    (ArviZ DataTree), ``out`` (the run folder)."""
+
+    summary: dict
+    posterior: object
+    out: Path
+
+
+@dataclass
+class Prepared:
+    """A config turned into a ready-to-sample posterior density."""
+
+    config: object
+    grid: object
+    space: ParameterSpace
+    channels: dict
+    log_post: Posterior
+
+
+class _Log:
+    def __init__(self, quiet):
+        self.lines, self.quiet, self.t0 = [], quiet, time.perf_counter()
+
+    def __call__(self, msg):
+        line = f"[{time.perf_counter() - self.t0:7.1f} s] {msg}"
+        self.lines.append(line)
+        if not self.quiet:
+            print(line, file=sys.stderr, flush=True)
+
+
+def _read_spectrum(spec):
+    from .observe import apply_masks, read_spectrum
+
+    s = read_spectrum(spec.file, air=spec.air, wave_unit=spec.wave_unit,
+                      flux_unit=spec.flux_unit)
+    ranges = list(spec.mask)
+    if spec.wave_range is not None:
+        ranges += [(0.0, spec.wave_range[0]), (spec.wave_range[1], np.inf)]
+    return apply_masks(s, ranges=ranges, telluric=spec.telluric_mask)
+
+
+def prepare(config, grid=None, log=print):
+    """Load data and grid, precompute the model pieces; return a :class:`Prepared`."""
+    from .observe import read_photometry
+    from .photosphere import load_grid
+
+    cfg = config if not isinstance(config, (str, Path)) else load_config(config)
+    grid = grid if grid is not None else load_grid(cfg.grid)
+    space = ParameterSpace(cfg, grid.bounds)
+    r_v_prior = space.prior_of("r_v")
+    channels = {}
+    for ep in cfg.epochs:
+        chans = []
+        for i, spec in enumerate(ep.spectra):
+            s = _read_spectrum(spec)
+            chans.append(SpectrumChannel(
+                s, grid, cfg.model, r_v_prior, resolution=spec.resolution, fwhm_A=spec.fwhm_A,
+                calibration_order=spec.calibration_order,
+                calibration_sigma=spec.calibration_sigma, name=f"spectrum{i + 1}"))
+            log(f"epoch {ep.label}: spectrum {spec.file.name}, {chans[-1].n_points} pixels used")
+        if ep.photometry is not None:
+            phot = read_photometry(ep.photometry)
+            chans.append(PhotometryChannel(phot, grid, cfg.model, r_v_prior))
+            log(f"epoch {ep.label}: photometry {ep.photometry.name}, bands {', '.join(phot.bands)}")
+        channels[ep.label] = chans
+    return Prepared(cfg, grid, space, channels, Posterior(space, channels, grid))
+
+
+def fit(config, out=None, *, resume=False, quiet=False):
+    """Run the main job on a config file; write and return the run.
+
+    Parameters
+    ----------
+    config : str or path-like or Config
+    out : path-like, optional
+        Run folder (default: ``run-<config name>`` beside the config).
+    resume : bool
+        Continue an interrupted run from ``OUT.partial/chain.h5``.
+    quiet : bool
+        No progress bar and no log lines on stderr.
+    """
+    from .pipeline import finish_run, sample_posterior
+
+    log = _Log(quiet)
+    prep = prepare(config, log=log)
+    cfg = prep.config
+    out = Path(out) if out is not None else cfg.path.parent / f"run-{cfg.path.stem}"
+    partial = out.with_name(out.name + ".partial")
+    if resume and not (partial / "chain.h5").exists():
+        raise ConfigError(f"nothing to resume: {partial / 'chain.h5'} does not exist",
+                          file=str(cfg.path), key="--resume")
+    if not resume and partial.exists():
+        shutil.rmtree(partial)
+    partial.mkdir(parents=True, exist_ok=True)
+    log(f"teffmc {__version__}: fitting {cfg.path} with {prep.space.ndim} free parameters: "
+        f"{', '.join(prep.space.names)}")
+    try:
+        result = sample_posterior(prep, partial / "chain.h5", resume=resume, quiet=quiet, log=log)
+        dt, summary = finish_run(prep, result, partial, log=log)
+    except BaseException:
+        # keep the checkpoint for --resume; the folder is clearly marked partial
+        (partial / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
+        raise
+    (partial / "chain.h5").unlink(missing_ok=True)
+    if out.exists():
+        shutil.rmtree(out)
+    partial.rename(out)
+    return FitResult(summary=summary, posterior=dt, out=out)
+
+
+def summary_to_text(summary):
+    """A few lines for the terminal."""
+    lines = []
+    if not summary["converged"]:
+        lines.append(f"CAUTION: not converged ({summary['reason']}); do not quote these numbers.")
+    for group in ("parameters", "derived"):
+        for name, s in summary.get(group, {}).items():
+            lines.append(f"{name:>18s} = {s['median']:.6g} (+{s['p84'] - s['median']:.3g} "
+                         f"-{s['median'] - s['p16']:.3g})  r_hat {s['r_hat']:.3f}  "
+                         f"ess {s['ess_bulk']:.0f}")
+    return "\n".join(lines)
+
+
+def dumps(obj):
+    return json.dumps(obj, indent=2)
