@@ -96,7 +96,7 @@ def to_float(values, *, file=None, column=None):
             out[i] = float(text)
         except ValueError:
             raise DataError(
-                f"row {i + 1}: should be a number but got {text!r}",
-                file=file, column=column, value=text,
+                f"row {i + 1}: should be a number but got {str(text)!r}",
+                file=file, column=column, value=str(text),
             ) from None
     return out

@@ -57,7 +57,13 @@ def wave_to_A(values, unit, *, file=None, column=None):
             f"wavelength unit should be a length but got {unit} ({unit.physical_type})",
             file=file, column=column, value=str(unit),
         )
-    return (np.asarray(values, dtype=float) * unit).to_value(u.AA)
+    factor = unit.to(u.AA)
+    # nm -> A comes out as 9.999999999999998; snap factors that are meant to be
+    # exact powers of ten so that 502 nm reads as 5020 A exactly.
+    snapped = 10.0 ** np.round(np.log10(factor))
+    if abs(factor / snapped - 1.0) < 1e-12:
+        factor = snapped
+    return np.asarray(values, dtype=float) * factor
 
 
 def flux_to_flam(values, unit, wave_A, *, file=None, column=None):
