@@ -123,11 +123,17 @@ def run_demo(out, *, quiet=False):
     """``teffmc demo``: write the invented data into ``out`` and fit them."""
     from .run import fit, summary_to_text
 
+    import shutil
+
     out = Path(out)
-    cfg = make_demo_data(out / "data")
+    staging = out.with_name(out.name + ".data")
+    if staging.exists():
+        shutil.rmtree(staging)
+    cfg = make_demo_data(staging)
     if not quiet:
-        print(f"demo data for the invented star Ficta written to {out / 'data'}", file=sys.stderr)
-    res = fit(cfg, out / "fit", quiet=quiet)
+        print(f"demo data for the invented star Ficta written to {staging}", file=sys.stderr)
+    res = fit(cfg, out, quiet=quiet)
+    shutil.move(str(staging), str(out / "data"))
     print(summary_to_text(res.summary))
     print("true values (invented): " + ", ".join(f"{k}={v:g}" for k, v in TRUTH.items()))
     print(f"run folder: {res.out}")

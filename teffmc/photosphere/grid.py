@@ -149,9 +149,13 @@ class Grid:
             idx = [self._locate(ax, np.where(ok, v, getattr(self, ax)[0]))
                    for ax, v in zip(AXES, (teff, logg, mh))]
             for corner in np.ndindex(2, 2, 2):
-                sel = [np.minimum(i + c * (w > 0), getattr(self, ax).size - 1)
-                       for (i, w), c, ax in zip(idx, corner, AXES)]
-                ok &= self._present[tuple(sel)]
+                sel = [np.minimum(i + c, getattr(self, ax).size - 1)
+                       for (i, _), c, ax in zip(idx, corner, AXES)]
+                # a corner with zero weight (point on the opposite face) does not count
+                weight = np.ones(ok.shape, bool)
+                for (_, w), c in zip(idx, corner):
+                    weight &= (w > 0) if c else (w < 1)
+                ok &= self._present[tuple(sel)] | ~weight
         return ok
 
     def interpolate_log(self, teff, logg, mh):

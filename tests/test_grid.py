@@ -1,0 +1,74 @@
+"""Grid file format and multilinear interpolation."""
+
+import numpy as np
+import pytest
+
+from teffmc.errors import GridError, OffGridError
+from teffmc.photosphere import Grid, load_grid
+
+
+def _toy_grid(rng, holes=()):
+    teff = np.array([3000.0, 3500.0, 4000.0])
+    logg = np.array([0.0, 1.0])
+    mh = np.array([-0.5, 0.0])
+    wave = np.linspace(4000.0, 9000.0, 50)
+    lf = rng.normal(5.0, 0.3, (3, 2, 2, 50)).astype(np.float32)
+    for h in holes:
+        lf[h] = np.nan
+    return Grid(teff, logg, mh, wave, lf, provenance={"source": "random test numbers"},
+                name="toy")
+
+
+def test_exact_at_nodes_and_round_trip(tmp_path, rng):
+    g = _toy_grid(rng)
+    g.write(tmp_path / "g.h5")
+    g2 = load_grid(tmp_path / "g.h5")
+    assert g2.checksum == g.checksum
+    np.testing.assert_array_equal(g2.log_flux, g.log_flux)
+    tt, gg, mm = np.meshgrid(g.teff, g.logg, g.mh, indexing="ij")
+    out = g2.interpolate_log(tt.ravel(), gg.ravel(), mm.ravel())
+    np.testing.assert_array_equal(out, g.log_flux.reshape(-1, 50).astype(float))
+
+
+def test_multilinear_is_linear_in_each_axis(rng):
+    # A log flux that is linear in the three axes is reproduced exactly (common practice,
+    # no source: multilinear interpolation is exact for multilinear functions).
+    teff, logg, mh = np.array([3000.0, 3500.0, 4000.0]), np.array([0.0, 1.0]), np.array([-1., 0.])
+    wave = np.linspace(4000, 5000, 5)
+    T, G, M = np.meshgrid(teff, logg, mh, indexing="ij")
+    lf = (1e-3 * T + 0.2 * G - 0.3 * M)[..., None] + np.zeros(5)
+    g = Grid(teff, logg, mh, wave, lf)
+    pts = rng.uniform([3000, 0, -1], [4000, 1, 0], (20, 3))
+    got = g.interpolate_log(*pts.T)[:, 0]
+    want = 1e-3 * pts[:, 0] + 0.2 * pts[:, 1] - 0.3 * pts[:, 2]
+    np.testing.assert_allclose(got, want, rtol=0, atol=2e-6)
+
+
+def test_off_grid_error_carries_point_and_bounds(rng):
+    g = _toy_grid(rng)
+    with pytest.raises(OffGridError) as e:
+        g.interpolate(np.array([3600.0, 4200.0]), 0.5, 0.0)
+    assert e.value.point["teff"] == 4200.0
+    assert e.value.bounds["teff"] == (3000.0, 4000.0)
+    assert "4200" in str(e.value) and "3000" in str(e.value)
+
+
+def test_holes_are_never_crossed(rng):
+    g = _toy_grid(rng, holes=[(1, 0, 0)])
+    assert g.holes == [(3500.0, 0.0, -0.5)]
+    # cells touching the hole are refused, others work
+    assert not g.check_inside(3200.0, 0.5, -0.25)
+    assert g.check_inside(3200.0, 1.0, 0.0)  # on the far face of the cell: no hole weight
+    with pytest.raises(OffGridError):
+        g.interpolate(3700.0, 0.2, -0.4)
+
+
+def test_corrupt_file_is_detected(tmp_path, rng):
+    import h5py
+
+    g = _toy_grid(rng)
+    g.write(tmp_path / "g.h5")
+    with h5py.File(tmp_path / "g.h5", "r+") as f:
+        f["log_flux"][0, 0, 0, 0] += 1.0
+    with pytest.raises(GridError, match="checksum"):
+        Grid.read(tmp_path / "g.h5")
