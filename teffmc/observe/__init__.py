@@ -4,6 +4,7 @@ Everything here works in vacuum Angstrom and F_lambda [erg s^-1 cm^-2 A^-1].
 """
 
 from teffmc.observe.airvac import air_to_vacuum, refractive_index_air, vacuum_to_air
+from teffmc.observe.lsf import FWHM_PER_SIGMA, apply_lsf, convolve_resample, lsf_matrix
 from teffmc.observe.spectrum import (
     TELLURIC_BANDS,
     Spectrum,
@@ -21,4 +22,8 @@ __all__ = [
     "from_specutils",
     "apply_masks",
     "TELLURIC_BANDS",
+    "lsf_matrix",
+    "apply_lsf",
+    "convolve_resample",
+    "FWHM_PER_SIGMA",
 ]
