@@ -24,7 +24,7 @@ DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "theta", "veil_sca
 @dataclass(frozen=True)
 class SpectrumSpec:
     file: Path
-    air: bool = False
+    air: bool | None = None
     resolution: float | None = None
     fwhm_A: float | None = None
     wave_range: tuple | None = None
@@ -63,6 +63,8 @@ class SamplerSpec:
     seed: int = 1
     n_starts: int = 16
     checkpoint_every: int = 100
+    evidence: bool = False
+    nlive: int = 200
 
 
 @dataclass(frozen=True)
@@ -164,7 +166,7 @@ def _prior(r: _Reader, k):
 def _spectrum(r: _Reader, base):
     s = SpectrumSpec(
         file=r.path("file", base, required=True),
-        air=r.get("air", bool, False),
+        air=r.get("air", bool, None),
         resolution=r.positive("resolution"),
         fwhm_A=r.positive("fwhm_A"),
         wave_range=_range(r, "wave_range"),
@@ -263,8 +265,9 @@ def parse_config(table, path="<config>"):
 
     s = top.sub("sampler") or _Reader(str(path), {}, "sampler.")
     sampler = SamplerSpec(**{
-        k: s.get(k, int, getattr(SamplerSpec, k)) for k in SamplerSpec.__dataclass_fields__})
-    for k in ("n_walkers", "max_steps", "check_every", "n_starts", "checkpoint_every"):
+        k: s.get(k, bool if k == "evidence" else int, getattr(SamplerSpec, k))
+        for k in SamplerSpec.__dataclass_fields__})
+    for k in ("n_walkers", "max_steps", "check_every", "n_starts", "checkpoint_every", "nlive"):
         if getattr(sampler, k) <= 0:
             raise s.err(k, f"should be > 0 but got {getattr(sampler, k)}", getattr(sampler, k))
     s.done()

@@ -9,6 +9,7 @@ import numpy as np
 
 from . import __version__
 from . import posterior as post_mod
+from .budget import dimming_budget
 from .derived import bolometric
 from .model import Dust, observed_flux
 from .report import corner_figure, fit_figure, write_summary
@@ -77,9 +78,23 @@ def derived_quantities(prep, flat, rng):
         for k, v in bolometric(p, dist).items():
             out[k + suffix] = v
         out["v_mag" + suffix] = _chunked(lambda x: vband(space.epoch_values(x, label)), flat)
+    if space.multi:
+        ref = space.labels[0]
+        pa = space.epoch_values(flat, ref)
+        for label in space.labels[1:]:
+            pb = space.epoch_values(flat, label)
+            out[f"delta_teff@{label}"] = pb["teff"] - pa["teff"]
+            parts = _chunked(lambda idx: dimming_budget(
+                vband, _take(pa, idx), _take(pb, idx)), np.arange(flat.shape[0]))
+            for k, v in parts.items():
+                out[f"{k}@{label}"] = v
     if dist is not None:
         out["distance_pc"] = dist
     return out
+
+
+def _take(p, idx):
+    return {k: v[idx] for k, v in p.items()}
 
 
 def _versions():
@@ -157,8 +172,15 @@ def finish_run(prep, result, folder, *, log):
              "grid_checksum": grid_checksum, "versions": _versions(),
              "converged": int(result.converged), "reason": result.reason,
              "data_checksum": data_checksum(prep), "model": json.dumps(vars(cfg.model))}
+    constant, channels = {}, []
+    for pan, key in zip(_panels(prep, predictive), observed):
+        constant[f"{key}__x"], constant[f"{key}__err"] = pan["x"], pan["err"]
+        channels.append({"key": key, "kind": pan["kind"], "label": pan["label"],
+                         "bands": list(pan.get("bands", []))})
+    attrs["channels"] = json.dumps(channels)
+    attrs["title"] = cfg.name
     dt = post_mod.build(result, derived=derived, pointwise=pointwise, observed=observed,
-                        predictive=predictive, attrs=attrs)
+                        predictive=predictive, attrs=attrs, constant=constant)
     post_mod.save(dt, folder / "posterior.nc")
     summary = {
         "converged": bool(result.converged),
@@ -175,6 +197,14 @@ def finish_run(prep, result, folder, *, log):
         "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
         + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
     }
+    if cfg.sampler.evidence:
+        from .evidence import log_evidence
+
+        logz, logz_err, ncall = log_evidence(prep.log_post, space, seed=cfg.sampler.seed,
+                                             nlive=cfg.sampler.nlive)
+        summary["evidence"] = {"log_z": logz, "log_z_err": logz_err, "n_calls": ncall,
+                               "method": "nested sampling (dynesty)"}
+        log(f"evidence: ln Z = {logz:.2f} +- {logz_err:.2f} ({ncall} likelihood calls)")
     write_summary(summary, folder / "summary.json", folder / "summary.ecsv")
     (folder / "run.toml").write_text(dumps_toml(record), encoding="utf-8")
     log("figures")

@@ -21,7 +21,7 @@ def _to_chain_draw(a):
     return np.swapaxes(np.asarray(a), 0, 1)
 
 
-def build(result, *, derived, pointwise, observed, predictive, attrs):
+def build(result, *, derived, pointwise, observed, predictive, attrs, constant=None):
     """Assemble the DataTree.
 
     Parameters
@@ -36,6 +36,8 @@ def build(result, *, derived, pointwise, observed, predictive, attrs):
         ``{name: (n_points,)}``, same names as ``pointwise``.
     attrs : dict
         Root attributes (strings or numbers).
+    constant : dict, optional
+        ``{name: array}`` fixed inputs (wavelengths, errors) stored in ``constant_data``.
     """
     import arviz as az
 
@@ -51,6 +53,10 @@ def build(result, *, derived, pointwise, observed, predictive, attrs):
         "observed_data": {n: np.asarray(v) for n, v in observed.items()},
         "posterior_predictive": {n: _to_chain_draw(v) for n, v in predictive.items()},
     }
+    if constant:
+        data["constant_data"] = {n: np.asarray(v) for n, v in constant.items()}
+        for n in constant:
+            dims[n] = [f"{n.rsplit('__', 1)[0]}_point"]
     dt = az.from_dict(data, dims=dims)
     dt["sample_stats"].ds["acceptance_fraction"] = ("chain", np.asarray(
         result.acceptance_fraction))

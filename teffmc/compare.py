@@ -1,0 +1,112 @@
+"""Hypothesis comparison of runs fitted to the same data.
+
+Two estimates side by side:
+
+* PSIS-LOO (Vehtari, Gelman & Gabry 2017, Statistics and Computing 27, 1413) through
+  ArviZ, on every pointwise log-likelihood term (spectrum pixels and photometric
+  bands). Differences are taken against the best run, with the standard error of
+  the difference from the pointwise differences, ``se = sqrt(n var(d_i))`` (same
+  paper, eq. 24). Pareto k > 0.7 flags points where the estimate is unreliable.
+* The Bayesian evidence ln Z from nested sampling (see :mod:`teffmc.evidence`), when
+  the runs computed it (``[sampler] evidence = true``).
+"""
+
+import json
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from . import posterior as post_mod
+from .errors import DataError
+
+__all__ = ["compare_runs", "Comparison", "load_run"]
+
+K_WARN = 0.7  # Vehtari et al. 2017/2024: k above 0.7 makes the PSIS estimate unreliable
+
+
+@dataclass
+class Comparison:
+    rows: list
+    text: str
+    out: Path | None
+
+
+def load_run(run_dir):
+    run_dir = Path(run_dir)
+    nc, sj = run_dir / "posterior.nc", run_dir / "summary.json"
+    for f in (nc, sj):
+        if not f.exists():
+            raise DataError("not a finished teffmc run folder (file missing)", file=str(f))
+    return post_mod.load(nc), json.loads(sj.read_text(encoding="utf-8"))
+
+
+def compare_runs(run_dirs, out=None):
+    """Compare hypotheses; write compare.json, compare.ecsv, compare.png into ``out``."""
+    if len(run_dirs) < 2:
+        raise DataError("compare needs at least two run folders", file=str(run_dirs[0]))
+    runs = [(Path(d), *load_run(d)) for d in run_dirs]
+    ref_dir, ref_dt, _ = runs[0]
+    for d, dt, _ in runs[1:]:
+        if dt.attrs.get("data_checksum") != ref_dt.attrs.get("data_checksum"):
+            raise DataError(
+                f"runs were made on different data ({ref_dir} data sha256 "
+                f"{ref_dt.attrs.get('data_checksum', '?')[:12]}, {d} data sha256 "
+                f"{dt.attrs.get('data_checksum', '?')[:12]}); compare only runs on the same data",
+                file=str(d))
+    rows, pointwise = [], {}
+    for d, dt, summ in runs:
+        elpd, se, elpd_i, k = post_mod.loo(dt)
+        pointwise[d.name] = elpd_i
+        ev = summ.get("evidence", {})
+        rows.append({"run": d.name, "path": str(d), "elpd_loo": elpd, "se": se,
+                     "n_points": int(elpd_i.size), "n_bad_k": int(np.sum(k > K_WARN)),
+                     "max_k": float(np.max(k)), "converged": bool(summ["converged"]),
+                     "log_z": ev.get("log_z", np.nan), "log_z_err": ev.get("log_z_err", np.nan)})
+    rows.sort(key=lambda r: -r["elpd_loo"])
+    best = rows[0]
+    for r in rows:
+        diff = pointwise[r["run"]] - pointwise[best["run"]]
+        r["elpd_diff"] = float(diff.sum())
+        r["se_diff"] = float(np.sqrt(diff.size * np.var(diff, ddof=1))) if r is not best else 0.0
+        r["log_z_diff"] = float(r["log_z"] - best["log_z"])
+        r["log_z_diff_err"] = float(np.hypot(r["log_z_err"], best["log_z_err"])) \
+            if r is not best else 0.0
+    text = _text(rows)
+    if out is not None:
+        out = Path(out)
+        out.mkdir(parents=True, exist_ok=True)
+        _write(rows, out)
+        from .report.compare_figure import compare_figure
+
+        compare_figure([(d.name, dt, s) for d, dt, s in runs], out / "compare.png")
+    return Comparison(rows=rows, text=text, out=out)
+
+
+def _text(rows):
+    lines = [f"{'run':>16s} {'elpd_loo':>10s} {'diff':>9s} {'se_diff':>8s} {'ln Z':>9s} "
+             f"{'dlnZ':>8s}  notes"]
+    for r in rows:
+        notes = []
+        if r["n_bad_k"]:
+            notes.append(f"{r['n_bad_k']} points with Pareto k > {K_WARN}")
+        if not r["converged"]:
+            notes.append("NOT CONVERGED")
+        lines.append(f"{r['run']:>16s} {r['elpd_loo']:10.1f} {r['elpd_diff']:9.1f} "
+                     f"{r['se_diff']:8.1f} {r['log_z']:9.1f} {r['log_z_diff']:8.1f}  "
+                     + "; ".join(notes))
+    lines.append("elpd_loo: PSIS-LOO expected log predictive density (higher is better); "
+                 "diff and se_diff against the best run. ln Z: nested-sampling evidence.")
+    return "\n".join(lines)
+
+
+def _write(rows, out):
+    from astropy.table import Table
+
+    (out / "compare.json").write_text(json.dumps({"runs": rows}, indent=2), encoding="utf-8")
+    cols = ["run", "elpd_loo", "se", "elpd_diff", "se_diff", "log_z", "log_z_err",
+            "log_z_diff", "log_z_diff_err", "n_points", "n_bad_k", "max_k", "converged"]
+    t = Table(rows=[[r[c] for c in cols] for r in rows], names=cols)
+    t.meta["method"] = ("PSIS-LOO (Vehtari, Gelman & Gabry 2017) via ArviZ; evidence by nested "
+                        "sampling (dynesty)")
+    t.write(out / "compare.ecsv", format="ascii.ecsv", overwrite=True)
