@@ -1,0 +1,167 @@
+"""Starting points for the sampler: a multi-start optimum and a ball of walkers around it.
+
+Both functions take a vectorised log-probability ``log_prob(x)`` with ``x`` of shape
+``(n, ndim)`` returning ``(n,)``, equal to ``-inf`` outside the priors (``nan`` is
+treated as ``-inf``).
+"""
+
+import numpy as np
+from scipy.optimize import minimize
+
+from teffmc.errors import ConfigError, TeffmcError
+
+__all__ = ["find_start", "initial_ball"]
+
+# Stand-in for -log_prob = +inf: Nelder-Mead only compares values, but a finite number
+# keeps its convergence test (differences of simplex values) free of inf - inf warnings.
+_OUTSIDE = 1e300
+
+
+def _finite_log_prob(log_prob, x):
+    """Evaluate ``log_prob`` on a batch, mapping nan to -inf and checking the shape."""
+    x = np.atleast_2d(np.asarray(x, dtype=float))
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        lp = np.asarray(log_prob(x), dtype=float)
+    if lp.shape != (x.shape[0],):
+        raise TeffmcError(
+            f"log_prob should return shape ({x.shape[0]},) for {x.shape[0]} walkers "
+            f"but returned shape {lp.shape}"
+        )
+    return np.where(np.isnan(lp), -np.inf, lp)
+
+
+def find_start(log_prob, sample_prior, *, n_starts=16, rng, bounds=None, n_polish=4):
+    """Find a high-posterior starting point by multi-start optimisation inside the priors.
+
+    ``n_starts`` points are drawn from the prior, the ``n_polish`` best are polished with
+    Nelder-Mead on ``-log_prob`` (in coordinates scaled by the spread of the prior draws,
+    so one tolerance suits every parameter), and the best result is polished once more.
+
+    Parameters
+    ----------
+    log_prob : callable
+        Vectorised log-probability, ``(n, ndim) -> (n,)``, ``-inf`` outside the priors.
+    sample_prior : callable
+        ``sample_prior(rng, n) -> (n, ndim)`` draws from the prior.
+    n_starts : int, optional
+        Number of prior draws (>= 1).
+    rng : numpy.random.Generator
+        Random generator for the prior draws.
+    bounds : sequence of (low, high), optional
+        Box passed to the optimiser; ``None`` entries mean unbounded.
+    n_polish : int, optional
+        Number of the best prior draws that are optimised.
+
+    Returns
+    -------
+    numpy.ndarray
+        The best point found, shape ``(ndim,)``, with finite ``log_prob``.
+
+    Raises
+    ------
+    ConfigError
+        If ``n_starts`` or ``n_polish`` is not a positive integer.
+    TeffmcError
+        If no prior draw has a finite log-probability.
+    """
+    for key, value in (("n_starts", n_starts), ("n_polish", n_polish)):
+        if int(value) != value or value < 1:
+            raise ConfigError(f"should be a positive integer but got {value!r}", key=key)
+    draws = np.atleast_2d(np.asarray(sample_prior(rng, int(n_starts)), dtype=float))
+    lp = _finite_log_prob(log_prob, draws)
+    if not np.isfinite(lp).any():
+        raise TeffmcError(
+            f"none of {n_starts} prior draws has a finite log-probability; "
+            "check the priors and the data"
+        )
+    good = draws[np.isfinite(lp)]
+    centre = good.mean(axis=0)
+    spread = draws.std(axis=0)
+    spread = np.where(spread > 0, spread, np.maximum(np.abs(centre) * 0.05, 1e-3))
+    zbounds = None
+    if bounds is not None:
+        zbounds = [
+            tuple(None if b is None else (b - c) / s for b in pair)
+            for pair, c, s in zip(bounds, centre, spread, strict=True)
+        ]
+
+    def objective(z):
+        value = _finite_log_prob(log_prob, centre + spread * z)[0]
+        return -value if np.isfinite(value) else _OUTSIDE
+
+    def polish(x, step):
+        z0 = (x - centre) / spread
+        simplex = np.vstack([z0, z0 + step * np.eye(z0.size)])
+        res = minimize(
+            objective, z0, method="Nelder-Mead", bounds=zbounds,
+            options={"initial_simplex": simplex, "xatol": 1e-6, "fatol": 1e-6,
+                     "maxiter": 400 * z0.size},
+        )
+        return centre + spread * res.x, -res.fun
+
+    order = np.argsort(lp)[::-1][: min(int(n_polish), int(np.isfinite(lp).sum()))]
+    best_x, best_lp = draws[order[0]], lp[order[0]]
+    for i in order:
+        x, value = polish(draws[i], 0.1)
+        if value > best_lp:
+            best_x, best_lp = x, value
+    x, value = polish(best_x, 0.01)  # restart: Nelder-Mead can stall on a collapsed simplex
+    return x if value > best_lp else best_x
+
+
+def initial_ball(x, rng, n_walkers, log_prob, scale, *, max_rounds=60):
+    """Place walkers in a small Gaussian ball around ``x``, all with finite log-probability.
+
+    Walkers that land where ``log_prob`` is ``-inf`` are re-drawn; after every five
+    rounds with failures the ball shrinks by a factor 2.
+
+    Parameters
+    ----------
+    x : array_like, shape (ndim,)
+        Centre of the ball; must have finite log-probability.
+    rng : numpy.random.Generator
+        Random generator.
+    n_walkers : int
+        Number of walkers.
+    log_prob : callable
+        Vectorised log-probability, ``(n, ndim) -> (n,)``.
+    scale : float or array_like, shape (ndim,)
+        Standard deviation of the ball per parameter [parameter units], > 0.
+    max_rounds : int, optional
+        Number of re-draw rounds before giving up.
+
+    Returns
+    -------
+    numpy.ndarray
+        Walker positions, shape ``(n_walkers, ndim)``.
+
+    Raises
+    ------
+    ConfigError
+        If ``scale`` is not positive or ``n_walkers`` < 1.
+    TeffmcError
+        If ``x`` has non-finite log-probability or the ball cannot be filled.
+    """
+    x = np.asarray(x, dtype=float)
+    scale = np.broadcast_to(np.asarray(scale, dtype=float), x.shape).copy()
+    if not np.all(scale > 0):
+        raise ConfigError(f"should be > 0 but got {scale.tolist()}", key="scale")
+    if int(n_walkers) != n_walkers or n_walkers < 1:
+        raise ConfigError(f"should be a positive integer but got {n_walkers!r}", key="n_walkers")
+    if not np.isfinite(_finite_log_prob(log_prob, x)[0]):
+        raise TeffmcError(f"the ball centre {x.tolist()} has non-finite log-probability")
+    ball = x + scale * rng.standard_normal((int(n_walkers), x.size))
+    bad = ~np.isfinite(_finite_log_prob(log_prob, ball))
+    for attempt in range(1, max_rounds + 1):
+        if not bad.any():
+            return ball
+        if attempt % 5 == 0:
+            scale = scale / 2
+        ball[bad] = x + scale * rng.standard_normal((int(bad.sum()), x.size))
+        bad[bad] = ~np.isfinite(_finite_log_prob(log_prob, ball[bad]))
+    if bad.any():
+        raise TeffmcError(
+            f"{int(bad.sum())} of {n_walkers} walkers still have non-finite log-probability "
+            f"after {max_rounds} re-draws around {x.tolist()}"
+        )
+    return ball

@@ -1,0 +1,123 @@
+"""The stop rule: autocorrelation time, convergence test, burn-in and thinning.
+
+Stop rule (Foreman-Mackey et al. 2013, PASP 125, 306, and the emcee "Autocorrelation
+analysis & convergence" tutorial; the factor 50 is common practice, no source): at step
+``n`` estimate the integrated autocorrelation time ``tau`` of every parameter
+(walker-averaged autocorrelation function, Sokal's automatic window with c = 5, emcee's
+estimator with ``tol=0``); converged when ``n >= min_steps``, ``n > tau_factor * max(tau)``
+and every ``|tau(n) - tau(n - check_every)| / tau(n) < tau_rtol``. tau is computed from
+the whole chain so far, so the rule is a pure function of the chain (which makes a
+resumed run repeat an uninterrupted one exactly).
+
+After the stop, burn-in = ceil(3 max tau) steps and thin = floor(min tau / 2). The emcee
+tutorial uses 2 max tau and min tau / 2; 3 because our walkers start in a tight ball
+whose expansion takes a few tau.
+"""
+
+import math
+
+import emcee
+import numpy as np
+
+from teffmc.errors import TeffmcError
+
+__all__ = ["autocorr_time", "stop_rule", "burn_thin"]
+
+BURN_TAUS = 3.0  # burn-in in units of max tau (see module docstring)
+THIN_TAUS = 0.5  # thinning in units of min tau
+
+
+def autocorr_time(chain):
+    """Estimate the integrated autocorrelation time of each parameter of an ensemble chain.
+
+    Parameters
+    ----------
+    chain : array_like, shape (n_steps, n_walkers, ndim)
+        The chain, as ``emcee.EnsembleSampler.get_chain()`` returns it.
+
+    Returns
+    -------
+    numpy.ndarray, shape (ndim,)
+        tau [steps]; ``nan`` for a parameter that never moves.
+
+    Raises
+    ------
+    TeffmcError
+        If ``chain`` is not 3-D with at least 2 steps.
+    """
+    chain = np.asarray(chain, dtype=float)
+    if chain.ndim != 3 or chain.shape[0] < 2:
+        raise TeffmcError(f"chain should have shape (n_steps >= 2, n_walkers, ndim) "
+                          f"but got {chain.shape}")
+    with np.errstate(invalid="ignore", divide="ignore"):  # a frozen parameter gives 0/0
+        return np.atleast_1d(emcee.autocorr.integrated_time(chain, c=5, tol=0))
+
+
+def stop_rule(n, tau, tau_prev, *, names, min_steps, tau_factor, tau_rtol, prev_step):
+    """Decide whether the chain has converged at step ``n``.
+
+    Parameters
+    ----------
+    n : int
+        Steps so far.
+    tau, tau_prev : numpy.ndarray, shape (ndim,)
+        tau [steps] from the first ``n`` and the first ``prev_step`` steps.
+    names : sequence of str
+        Parameter names, for the message.
+    min_steps : int
+        No convergence before this many steps.
+    tau_factor : float
+        Required chain length in units of max tau.
+    tau_rtol : float
+        Largest accepted relative change of tau between the two estimates.
+    prev_step : int
+        Step of ``tau_prev``; 0 means no earlier estimate (never stable).
+
+    Returns
+    -------
+    converged : bool
+    text : str
+        One line with the numbers behind the decision.
+    """
+    if not np.all(np.isfinite(tau)):
+        stuck = [nm for nm, t in zip(names, tau, strict=True) if not np.isfinite(t)]
+        return False, f"{n} steps: parameter(s) {', '.join(stuck)} never moved"
+    k = int(np.argmax(tau))
+    long_enough = n > tau_factor * tau[k]
+    change = np.abs(tau - tau_prev) / tau if prev_step > 0 else np.full(tau.shape, np.inf)
+    dmax = float(np.max(change))
+    dtxt = f"{dmax:.1%}" if np.isfinite(dmax) else "unknown"
+    text = (f"{n} steps, {tau_factor:g} x max tau = {tau_factor * tau[k]:.0f} "
+            f"(tau {tau[k]:.1f} for {names[k]}), tau changed by {dtxt} "
+            f"since step {prev_step} (limit {tau_rtol:.1%})")
+    if n < min_steps:
+        return False, f"{text}; fewer than min_steps = {min_steps}"
+    return bool(long_enough and dmax < tau_rtol), text
+
+
+def burn_thin(tau, n, converged):
+    """Choose burn-in and thinning from tau.
+
+    Parameters
+    ----------
+    tau : numpy.ndarray, shape (ndim,)
+        Integrated autocorrelation times [steps].
+    n : int
+        Steps run.
+    converged : bool
+        If False, burn-in is capped at ``n // 2`` and thinning so that at least about
+        ten draws per walker remain.
+
+    Returns
+    -------
+    burn, thin : int
+        Steps to discard and stride [steps].
+    """
+    if not np.all(np.isfinite(tau)):
+        return n // 2, 1
+    burn = math.ceil(BURN_TAUS * float(np.max(tau)))
+    thin = max(1, math.floor(THIN_TAUS * float(np.min(tau))))
+    if not converged:
+        burn = min(burn, n // 2)
+        thin = min(thin, max(1, (n - burn) // 10))
+    return burn, thin
