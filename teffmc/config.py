@@ -7,7 +7,7 @@ resolved against the folder of the config file.
 
 import math
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from .errors import ConfigError
@@ -78,11 +78,19 @@ class Config:
     shared: tuple
     sampler: SamplerSpec
     distance_pc: Prior | None = None
+    hypotheses: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
 
     @property
     def multi_epoch(self):
         return len(self.epochs) > 1
+
+    def variants(self):
+        """``[(name, Config)]``: one config per declared hypothesis (or just this one)."""
+        if not self.hypotheses:
+            return [(None, self)]
+        return [(name, replace(self, model=replace(self.model, **over), hypotheses=()))
+                for name, over in self.hypotheses]
 
 
 class _Reader:
@@ -273,9 +281,30 @@ def parse_config(table, path="<config>"):
     s.done()
 
     distance = _prior(top, "distance_pc")
+    hyps = []
+    for i, t in enumerate(top.get("hypothesis", list, [])):
+        if not isinstance(t, dict):
+            raise top.err(f"hypothesis[{i}]", f"should be a table but got {t!r}", t)
+        h = _Reader(str(path), t, f"hypothesis[{i}].")
+        hname = h.get("name", str, required=True)
+        if not hname.isidentifier():
+            raise h.err("name", f"should be a simple name (letters, digits, _) but got {hname!r}",
+                        hname)
+        over = {}
+        for k in ("veil", "grain_material", "extinction_law", "likelihood"):
+            if k in t:
+                over[k] = h.choice(k, VEILS, None) if k == "veil" else h.get(k, str)
+        for k in ("scattering", "patches"):
+            if k in t:
+                over[k] = h.get(k, bool)
+        h.done()
+        hyps.append((hname, over))
+    if len({n for n, _ in hyps}) != len(hyps):
+        raise top.err("hypothesis", "hypothesis names must be unique", [n for n, _ in hyps])
     top.done()
     return Config(path=path, name=name, grid=grid, epochs=tuple(epochs), model=model,
-                  priors=priors, shared=shared, sampler=sampler, distance_pc=distance, raw=table)
+                  priors=priors, shared=shared, sampler=sampler, distance_pc=distance,
+                  hypotheses=tuple(hyps), raw=table)
 
 
 def load_config(path):

@@ -71,13 +71,19 @@ class _Slot:
 class ParameterSpace:
     """The mapping between a flat sampled vector and named per-epoch parameters."""
 
-    def __init__(self, config, grid_bounds):
+    def __init__(self, config, grid_bounds, *, other_models=()):
         defaults = model_parameters(config.model, grid_bounds)
+        # priors for parameters of sibling hypotheses are allowed (and unused) here
+        sibling = set()
+        for m in other_models:
+            sibling |= set(model_parameters(m, grid_bounds))
         file = str(config.path)
         labels = [e.label for e in config.epochs]
         priors = dict(defaults)
         for key, prior in config.priors.items():
             base, _, label = key.partition("@")
+            if base in sibling and base not in defaults:
+                continue
             if base not in defaults:
                 raise ConfigError(f"not a parameter of this model (parameters: "
                                   f"{', '.join(defaults)})", file=file, key=f"priors.{key}",

@@ -35,6 +35,7 @@ class FitResult:
     summary: dict
     posterior: object
     out: Path
+    comparison: object = None
 
 
 @dataclass
@@ -70,14 +71,14 @@ def _read_spectrum(spec):
     return apply_masks(s, ranges=ranges, telluric=spec.telluric_mask)
 
 
-def prepare(config, grid=None, log=print):
+def prepare(config, grid=None, log=print, other_models=()):
     """Load data and grid, precompute the model pieces; return a :class:`Prepared`."""
     from .observe import read_photometry
     from .photosphere import load_grid
 
     cfg = config if not isinstance(config, (str, Path)) else load_config(config)
     grid = grid if grid is not None else load_grid(cfg.grid)
-    space = ParameterSpace(cfg, grid.bounds)
+    space = ParameterSpace(cfg, grid.bounds, other_models=other_models)
     r_v_prior = space.prior_of("r_v")
     channels = {}
     for ep in cfg.epochs:
@@ -100,6 +101,10 @@ def prepare(config, grid=None, log=print):
 def fit(config, out=None, *, resume=False, quiet=False):
     """Run the main job on a config file; write and return the run.
 
+    A config that declares several ``[[hypothesis]]`` variants fits each into
+    ``OUT/<name>/`` and compares them in ``OUT/`` (compare.json, compare.ecsv,
+    compare.png); the result returned is the best-ranked run, with ``.comparison``.
+
     Parameters
     ----------
     config : str or path-like or Config
@@ -110,12 +115,35 @@ def fit(config, out=None, *, resume=False, quiet=False):
     quiet : bool
         No progress bar and no log lines on stderr.
     """
+    cfg = config if not isinstance(config, (str, Path)) else load_config(config)
+    out = Path(out) if out is not None else cfg.path.parent / f"run-{cfg.path.stem}"
+    variants = cfg.variants()
+    if len(variants) == 1:
+        return fit_one(cfg, out, resume=resume, quiet=quiet)
+    from .compare import compare_runs
+
+    models = [v.model for _, v in variants]
+    results = {}
+    for name, v in variants:
+        if not quiet:
+            print(f"== hypothesis {name}", file=sys.stderr)
+        results[name] = fit_one(v, out / name, resume=resume, quiet=quiet, other_models=models)
+    comp = compare_runs([out / name for name, _ in variants], out)
+    if not quiet:
+        print(comp.text, file=sys.stderr)
+    best = results[comp.rows[0]["run"]]
+    best.comparison = comp
+    return best
+
+
+def fit_one(config, out, *, resume=False, quiet=False, other_models=()):
+    """Fit one model variant into the run folder ``out`` (see :func:`fit`)."""
     from .pipeline import finish_run, sample_posterior
 
     log = _Log(quiet)
-    prep = prepare(config, log=log)
+    prep = prepare(config, log=log, other_models=other_models)
     cfg = prep.config
-    out = Path(out) if out is not None else cfg.path.parent / f"run-{cfg.path.stem}"
+    out = Path(out)
     partial = out.with_name(out.name + ".partial")
     if resume and not (partial / "chain.h5").exists():
         raise ConfigError(f"nothing to resume: {partial / 'chain.h5'} does not exist",
