@@ -17,7 +17,7 @@ __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_
            "parse_config"]
 
 VEILS = ("none", "grey", "mie")
-DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "theta", "veil_scatter",
+DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter")
                   "patch_dteff", "rv_kms", "jitter")
 
 
