@@ -18,7 +18,6 @@ __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_
 
 VEILS = ("none", "grey", "mie")
 DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter")
-                  "patch_dteff", "rv_kms", "jitter")
 
 
 @dataclass(frozen=True)
