@@ -4,6 +4,9 @@ Everything here works in vacuum Angstrom and F_lambda [erg s^-1 cm^-2 A^-1].
 """
 
 from teffmc.observe.airvac import air_to_vacuum, refractive_index_air, vacuum_to_air
+from teffmc.observe.bandset import AB_FNU0, VEGA_MAG, BandSet, synth_mag
+from teffmc.observe.filters import Filter, get_filter, known_bands, vega_spectrum
+from teffmc.observe.photometry import Photometry, make_photometry, read_photometry
 from teffmc.observe.lsf import FWHM_PER_SIGMA, apply_lsf, convolve_resample, lsf_matrix
 from teffmc.observe.spectrum import (
     TELLURIC_BANDS,
@@ -26,4 +29,15 @@ __all__ = [
     "apply_lsf",
     "convolve_resample",
     "FWHM_PER_SIGMA",
+    "Filter",
+    "get_filter",
+    "known_bands",
+    "vega_spectrum",
+    "BandSet",
+    "synth_mag",
+    "VEGA_MAG",
+    "AB_FNU0",
+    "Photometry",
+    "make_photometry",
+    "read_photometry",
 ]
