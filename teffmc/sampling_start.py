@@ -62,7 +62,8 @@ def find_start(log_prob, sample_prior, *, n_starts=16, rng, bounds=None, n_polis
     ConfigError
         If ``n_starts`` or ``n_polish`` is not a positive integer.
     TeffmcError
-        If no prior draw has a finite log-probability.
+        If no prior draw, or no optimised point within ``bounds``, has a finite
+        log-probability.
     """
     for key, value in (("n_starts", n_starts), ("n_polish", n_polish)):
         if int(value) != value or value < 1:
@@ -78,33 +79,37 @@ def find_start(log_prob, sample_prior, *, n_starts=16, rng, bounds=None, n_polis
     centre = good.mean(axis=0)
     spread = draws.std(axis=0)
     spread = np.where(spread > 0, spread, np.maximum(np.abs(centre) * 0.05, 1e-3))
-    zbounds = None
+    zbounds, lo, hi = None, -np.inf, np.inf
     if bounds is not None:
         zbounds = [
             tuple(None if b is None else (b - c) / s for b in pair)
             for pair, c, s in zip(bounds, centre, spread, strict=True)
         ]
+        lo = np.array([-np.inf if b[0] is None else b[0] for b in zbounds])
+        hi = np.array([np.inf if b[1] is None else b[1] for b in zbounds])
 
     def objective(z):
         value = _finite_log_prob(log_prob, centre + spread * z)[0]
         return -value if np.isfinite(value) else _OUTSIDE
 
     def polish(x, step):
-        z0 = (x - centre) / spread
+        z0 = np.clip((x - centre) / spread, lo, hi)  # prior draws may lie outside bounds
         simplex = np.vstack([z0, z0 + step * np.eye(z0.size)])
         res = minimize(
             objective, z0, method="Nelder-Mead", bounds=zbounds,
             options={"initial_simplex": simplex, "xatol": 1e-6, "fatol": 1e-6,
                      "maxiter": 400 * z0.size},
         )
-        return centre + spread * res.x, -res.fun
+        return centre + spread * res.x, (-res.fun if res.fun < _OUTSIDE else -np.inf)
 
     order = np.argsort(lp)[::-1][: min(int(n_polish), int(np.isfinite(lp).sum()))]
-    best_x, best_lp = draws[order[0]], lp[order[0]]
+    best_x, best_lp = None, -np.inf
     for i in order:
         x, value = polish(draws[i], 0.1)
         if value > best_lp:
             best_x, best_lp = x, value
+    if best_x is None:
+        raise TeffmcError(f"no point with finite log-probability found inside bounds {bounds}")
     x, value = polish(best_x, 0.01)  # restart: Nelder-Mead can stall on a collapsed simplex
     return x if value > best_lp else best_x
 

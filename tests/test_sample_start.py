@@ -1,0 +1,123 @@
+"""Multi-start optimisation and the start ball (teffmc.sampling_start)."""
+
+import numpy as np
+import pytest
+from test_sample_problems import correlated_gaussian_5d, gaussian_2d
+
+from teffmc.errors import ConfigError, TeffmcError
+from teffmc.sample import find_start, initial_ball
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(12345)
+
+
+def test_find_start_reaches_the_mode_of_a_correlated_gaussian(rng):
+    g = correlated_gaussian_5d()
+    x = find_start(g.log_prob, g.sample_prior, rng=rng)
+    assert x.shape == (5,)
+    # the prior box is +-20 sd wide; the optimum must be found to a small fraction of 1 sd
+    assert np.all(np.abs(x - g.mean) < 0.01 * g.sd), (x - g.mean) / g.sd
+
+
+def test_find_start_is_reproducible():
+    g = gaussian_2d()
+    a = find_start(g.log_prob, g.sample_prior, rng=np.random.default_rng(3))
+    b = find_start(g.log_prob, g.sample_prior, rng=np.random.default_rng(3))
+    assert np.array_equal(a, b)
+
+
+def test_find_start_mode_on_a_prior_edge(rng):
+    """Posterior rising towards a prior edge: the answer stays inside with finite log_prob."""
+    def log_prob(x):
+        inside = np.all((x >= 0) & (x <= 1), axis=1)
+        return np.where(inside, 3.0 * x[:, 0] - (x[:, 1] - 0.3) ** 2 / 0.01, -np.inf)
+
+    def prior(r, n):
+        return r.uniform(0, 1, (n, 2))
+
+    x = find_start(log_prob, prior, rng=rng)
+    assert np.isfinite(log_prob(x[None])[0])
+    assert x[0] > 0.99 and abs(x[1] - 0.3) < 0.01
+
+
+def test_find_start_uses_bounds(rng):
+    g = gaussian_2d()
+    bounds = [(3700.0, 3800.0), (None, None)]  # mode (3600) lies below the box
+    x = find_start(g.log_prob, g.sample_prior, rng=rng, bounds=bounds)
+    assert 3700.0 <= x[0] <= 3700.0 + 1.0
+
+
+def test_find_start_survives_nan_and_mostly_infinite_draws(rng):
+    """nan counts as -inf; one finite prior draw in 16 is enough."""
+    g = gaussian_2d()
+
+    def log_prob(x):
+        lp = g.log_prob(x)
+        far = np.abs(x[:, 0] - g.mean[0]) > 4 * g.sd[0]
+        return np.where(far, np.nan, lp)
+
+    x = find_start(log_prob, g.sample_prior, rng=rng, n_starts=64)
+    assert np.all(np.abs(x - g.mean) < 0.01 * g.sd)
+
+
+def test_find_start_fails_clearly_when_nothing_is_finite(rng):
+    g = gaussian_2d()
+    with pytest.raises(TeffmcError, match="none of 16 prior draws"):
+        find_start(lambda x: np.full(len(x), -np.inf), g.sample_prior, rng=rng)
+
+
+@pytest.mark.parametrize("bad", [0, -3, 2.5])
+def test_find_start_rejects_bad_n_starts(rng, bad):
+    g = gaussian_2d()
+    with pytest.raises(ConfigError, match="n_starts"):
+        find_start(g.log_prob, g.sample_prior, rng=rng, n_starts=bad)
+
+
+def test_initial_ball_is_small_finite_and_spread(rng):
+    g = correlated_gaussian_5d()
+    scale = 1e-3 * g.sd
+    ball = initial_ball(g.mean, rng, 48, g.log_prob, scale)
+    assert ball.shape == (48, 5)
+    assert np.all(np.isfinite(g.log_prob(ball)))
+    spread = ball.std(axis=0) / scale
+    assert np.all((spread > 0.6) & (spread < 1.4))
+
+
+def test_initial_ball_on_a_prior_edge_redraws_and_shrinks(rng):
+    """Centre on the edge: half of each draw fails; all walkers end inside."""
+    def log_prob(x):
+        return np.where(np.all(x >= 0, axis=1), -0.5 * np.sum(x**2, axis=1), -np.inf)
+
+    ball = initial_ball(np.array([0.0, 1.0]), rng, 32, log_prob, 0.1)
+    assert np.all(np.isfinite(log_prob(ball)))
+    assert ball[:, 0].std() > 0 and len(np.unique(ball[:, 0])) == 32
+
+
+def test_initial_ball_rejects_an_infinite_centre(rng):
+    g = gaussian_2d()
+    with pytest.raises(TeffmcError, match="non-finite log-probability"):
+        initial_ball(g.mean + 30 * g.sd, rng, 8, g.log_prob, 1.0)
+
+
+def test_initial_ball_gives_up_on_a_needle(rng):
+    """A centre whose neighbourhood is all -inf cannot be filled: a clear error, no hang."""
+    def log_prob(x):
+        return np.where(np.all(x == 0.0, axis=1), 0.0, -np.inf)
+
+    with pytest.raises(TeffmcError, match="still have non-finite"):
+        initial_ball(np.zeros(2), rng, 8, log_prob, 1.0, max_rounds=10)
+
+
+def test_initial_ball_rejects_bad_scale(rng):
+    g = gaussian_2d()
+    with pytest.raises(ConfigError, match="scale"):
+        initial_ball(g.mean, rng, 8, g.log_prob, [1.0, 0.0])
+
+
+def test_find_start_fails_clearly_when_bounds_exclude_the_support(rng):
+    g = gaussian_2d()
+    bounds = [(g.mean[0] + 30 * g.sd[0], None), (None, None)]  # beyond the +-20 sd box
+    with pytest.raises(TeffmcError, match="inside bounds"):
+        find_start(g.log_prob, g.sample_prior, rng=rng, bounds=bounds)
