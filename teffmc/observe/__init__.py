@@ -5,6 +5,13 @@ Everything here works in vacuum Angstrom and F_lambda [erg s^-1 cm^-2 A^-1].
 
 from teffmc.observe.airvac import air_to_vacuum, refractive_index_air, vacuum_to_air
 from teffmc.observe.bandset import AB_FNU0, VEGA_MAG, BandSet, synth_mag
+from teffmc.observe.calibration import (
+    CalibrationPosterior,
+    legendre_design,
+    marginal_loglike,
+    posterior_calibration,
+    student_t_loglike,
+)
 from teffmc.observe.filters import Filter, get_filter, known_bands, vega_spectrum
 from teffmc.observe.photometry import Photometry, make_photometry, read_photometry
 from teffmc.observe.lsf import FWHM_PER_SIGMA, apply_lsf, convolve_resample, lsf_matrix
@@ -40,4 +47,9 @@ __all__ = [
     "Photometry",
     "make_photometry",
     "read_photometry",
+    "legendre_design",
+    "marginal_loglike",
+    "posterior_calibration",
+    "CalibrationPosterior",
+    "student_t_loglike",
 ]
