@@ -1,0 +1,86 @@
+"""Autocorrelation time, the stop rule, burn-in and thinning (teffmc.sampling_stop).
+
+The AR(1) check follows emcee's own tests (emcee/tests/unit/test_autocorr.py): for
+x_t = phi x_(t-1) + e_t the integrated autocorrelation time is (1 + phi) / (1 - phi)
+(Sokal 1997, "Monte Carlo methods in statistical mechanics", from memory).
+"""
+
+import numpy as np
+import pytest
+from scipy.signal import lfilter
+
+from teffmc.errors import TeffmcError
+from teffmc.sampling_stop import autocorr_time, burn_thin, stop_rule
+
+
+def ar1_chain(rng, phi, n_steps, n_walkers):
+    """AR(1) chains, shape (n_steps, n_walkers, len(phi)), started in the stationary law."""
+    out = np.empty((n_steps, n_walkers, len(phi)))
+    for k, p in enumerate(phi):
+        e = rng.standard_normal((n_steps, n_walkers))
+        x0 = rng.standard_normal(n_walkers) / np.sqrt(1 - p**2)
+        out[:, :, k] = lfilter([1.0], [1.0, -p], e, axis=0, zi=p * x0[None, :])[0]
+    return out
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(42)
+
+
+def test_autocorr_time_of_ar1_chains(rng):
+    phi = np.array([0.0, 0.5, 0.9, 0.95])
+    tau_true = (1 + phi) / (1 - phi)  # 1, 3, 19, 39 steps
+    tau = autocorr_time(ar1_chain(rng, phi, 20000, 32))
+    # relative error of the windowed estimator ~ sqrt(2 (2M + 1) / N) with M ~ 5 tau,
+    # N = 640000: <= 3.5 % for tau = 39 (Sokal 1997, from memory); allow 3 sigma
+    assert np.allclose(tau, tau_true, rtol=0.1), tau
+
+
+def test_autocorr_time_of_a_frozen_parameter_is_nan_without_warning(rng):
+    chain = ar1_chain(rng, [0.5], 500, 8)
+    chain = np.concatenate([chain, np.ones_like(chain)], axis=2)
+    tau = autocorr_time(chain)
+    assert np.isfinite(tau[0]) and np.isnan(tau[1])
+
+
+def test_autocorr_time_rejects_a_flat_array(rng):
+    with pytest.raises(TeffmcError, match="should have shape"):
+        autocorr_time(rng.standard_normal((100, 3)))
+
+
+RULE = {"names": ["teff", "a_v"], "min_steps": 1000, "tau_factor": 50.0, "tau_rtol": 0.01}
+
+
+@pytest.mark.parametrize(
+    ("n", "tau", "tau_prev", "prev_step", "converged"),
+    [
+        (6000, [100.0, 50.0], [100.5, 50.2], 5500, True),  # long and stable
+        (4000, [100.0, 50.0], [100.5, 50.2], 3500, False),  # shorter than 50 tau
+        (6000, [100.0, 50.0], [98.0, 50.0], 5500, False),  # tau moved 2 %
+        (6000, [100.0, 50.0], [np.nan, np.nan], 0, False),  # no earlier estimate
+        (900, [10.0, 5.0], [10.0, 5.0], 800, False),  # before min_steps
+        (6000, [100.0, np.nan], [100.0, 50.0], 5500, False),  # a frozen parameter
+    ],
+)
+def test_stop_rule_cases(n, tau, tau_prev, prev_step, converged):
+    ok, text = stop_rule(n, np.array(tau), np.array(tau_prev), prev_step=prev_step, **RULE)
+    assert ok is converged
+    assert "\n" not in text and str(n) in text
+
+
+def test_stop_rule_names_the_slowest_parameter():
+    _, text = stop_rule(6000, np.array([10.0, 80.0]), np.array([10.0, 80.0]),
+                        prev_step=5500, **RULE)
+    assert "tau 80.0 for a_v" in text and "4000" in text
+
+
+def test_burn_and_thin_from_tau():
+    assert burn_thin(np.array([20.0, 41.2]), 5000, True) == (124, 10)
+    assert burn_thin(np.array([1.5, 1.2]), 5000, True) == (5, 1)
+
+
+def test_burn_and_thin_keep_draws_when_not_converged():
+    burn, thin = burn_thin(np.array([400.0, 300.0]), 1000, False)
+    assert burn == 500 and (1000 - burn) // thin >= 10
+    assert burn_thin(np.array([np.nan, 3.0]), 1000, False) == (500, 1)
