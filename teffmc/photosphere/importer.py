@@ -245,9 +245,11 @@ def log_uniform_overlap(waves):
 def rebin_flux_conserving(wave_in, flux_in, wave_out):
     """Mean of the piecewise-linear ``flux_in`` over each output pixel's extent.
 
-    Pixel edges lie midway between output pixels (half a pixel beyond the ends) and are
-    clipped to ``wave_in``; ``wave_out`` must lie inside ``wave_in``. Works on the last
-    axis of ``flux_in``.
+    Pixel edges lie midway between output pixels (half a pixel beyond the ends). Where
+    an edge falls outside ``wave_in`` the pixel's extent is shrunk symmetrically about
+    the pixel (so the mean stays centred on it; a pixel exactly at an end of
+    ``wave_in`` gets the end value). ``wave_out`` must lie inside ``wave_in``. Works on
+    the last axis of ``flux_in``.
     """
     x = np.asarray(wave_in, float)
     y = np.asarray(flux_in, float)
@@ -255,16 +257,27 @@ def rebin_flux_conserving(wave_in, flux_in, wave_out):
     if xo.size == 1:
         return np.interp(xo, x, y)
     mid = 0.5 * (xo[1:] + xo[:-1])
-    edges = np.concatenate([[xo[0] - (mid[0] - xo[0])], mid, [xo[-1] + (xo[-1] - mid[-1])]])
-    edges = np.clip(edges, x[0], x[-1])
+    lo = np.concatenate([[2.0 * xo[0] - mid[0]], mid])
+    hi = np.concatenate([mid, [2.0 * xo[-1] - mid[-1]]])
+    clipped = (lo < x[0]) | (hi > x[-1])
+    a = xo - np.maximum(lo, x[0])
+    b = np.minimum(hi, x[-1]) - xo
+    a, b = np.where(clipped, np.minimum(a, b), a), np.where(clipped, np.minimum(a, b), b)
     cum = np.concatenate([np.zeros(y.shape[:-1] + (1,)),
                           np.cumsum(0.5 * (y[..., 1:] + y[..., :-1]) * np.diff(x), axis=-1)],
                          axis=-1)
-    i = np.clip(np.searchsorted(x, edges, side="right") - 1, 0, x.size - 2)
-    dx = edges - x[i]
-    slope = (y[..., i + 1] - y[..., i]) / (x[i + 1] - x[i])
-    integral = cum[..., i] + y[..., i] * dx + 0.5 * slope * dx**2
-    return np.diff(integral, axis=-1) / np.diff(edges)
+
+    def integral(e):
+        i = np.clip(np.searchsorted(x, e, side="right") - 1, 0, x.size - 2)
+        dx = e - x[i]
+        slope = (y[..., i + 1] - y[..., i]) / (x[i + 1] - x[i])
+        return cum[..., i] + y[..., i] * dx + 0.5 * slope * dx**2
+
+    width = a + b
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = (integral(xo + b) - integral(xo - a)) / width
+    end_value = np.where(xo <= x[0], y[..., :1], y[..., -1:])  # zero width: xo is an end
+    return np.where(width > 0, mean, end_value)
 
 
 def _same_axis(a, b):
