@@ -163,7 +163,8 @@ def test_headerless_text_descending_and_units_from_the_table(tmp_path):
     folder = tmp_path / "m"
     folder.mkdir()
     flam = 1e6 * (WAVE / 5000.0) ** -2
-    text = "\n".join(f"{float(w / 1e4)!r} {float(f * 1e-3)!r}" for w, f in zip(WAVE[::-1], flam[::-1]))
+    text = "\n".join(f"{float(w / 1e4)!r} {float(f * 1e-3)!r}"
+                     for w, f in zip(WAVE[::-1], flam[::-1]))
     (folder / "x.dat").write_text(text + "\n")  # micron, W/m2/um... written descending
     (folder / "t.csv").write_text("file,teff,logg,mh,wave_unit,flux_unit\n"
                                   "x.dat,3000,0,0,um,W m-2 um-1\n")
@@ -179,7 +180,8 @@ def test_different_samplings_go_to_the_finest_log_uniform_overlap(tmp_path):
     folder.mkdir()
     fine = np.geomspace(4800.0, 6000.0, 3001)
     coarse = np.linspace(5000.0, 6500.0, 301)
-    smooth = lambda w: 1e6 * (w / 5500.0) ** -3  # noqa: E731  (invented shape)
+    def smooth(w):
+        return 1e6 * (w / 5500.0) ** -3  # invented shape
     _csv_text(folder / "fine.csv", fine, smooth(fine), air=False)
     _csv_text(folder / "coarse.csv", coarse, 2 * smooth(coarse), air=False)
     (folder / "t.csv").write_text("file,teff,logg,mh\nfine.csv,3000,0,0\ncoarse.csv,3500,0,0\n")
@@ -262,10 +264,10 @@ def test_unreadable_and_missing_files(tmp_path):
     folder.mkdir()
     (folder / "junk.fits").write_bytes(b"this is not FITS")
     (folder / "t.csv").write_text("file,teff,logg,mh\njunk.fits,3000,0,0\n")
-    with pytest.raises(DataError, match="junk.fits"):
+    with pytest.raises(DataError, match=r"junk.fits"):
         import_grid(folder, folder / "t.csv")
     (folder / "t.csv").write_text("file,teff,logg,mh\nnothere.csv,3000,0,0\n")
-    with pytest.raises(GridError, match="row 1: model file .*nothere.csv not found"):
+    with pytest.raises(GridError, match=r"row 1: model file .*nothere.csv not found"):
         import_grid(folder, folder / "t.csv")
 
 
@@ -285,11 +287,11 @@ def test_units_missing_or_contradicted(tmp_path):
     folder.mkdir()
     (folder / "x.csv").write_text("wave,flux\n5000,1\n5001,1\n")
     (folder / "t.csv").write_text("file,teff,logg,mh\nx.csv,3000,0,0\n")
-    with pytest.raises(GridError, match="x.csv: no wave unit in the file"):
+    with pytest.raises(GridError, match=r"x.csv: no wave unit in the file"):
         import_grid(folder, folder / "t.csv")
     _csv_text(folder / "y.csv", WAVE, np.ones(WAVE.size), air=False)
     (folder / "t.csv").write_text("file,teff,logg,mh,wave_unit\ny.csv,3000,0,0,nm\n")
-    with pytest.raises(GridError, match="y.csv: the table says wave_unit='nm' but the file says"):
+    with pytest.raises(GridError, match=r"y.csv: the table says wave_unit='nm' but the file says"):
         import_grid(folder, folder / "t.csv")
 
 

@@ -44,11 +44,11 @@ import numpy as np
 from ..errors import DataError, GridError
 from ..observe import _readers
 from ..observe._text import read_text_table, to_float
-from ..observe._units import parse_unit, wave_to_A, flux_to_flam
+from ..observe._units import flux_to_flam, parse_unit, wave_to_A
 from ..observe.airvac import air_to_vacuum
 from .grid import AXES, Grid
 
-__all__ = ["import_grid", "read_param_table", "rebin_flux_conserving", "log_uniform_overlap"]
+__all__ = ["import_grid", "log_uniform_overlap", "read_param_table", "rebin_flux_conserving"]
 
 # Two axes closer than this relative difference are the same axis (unit and
 # air->vacuum round-off is ~1e-14; 1e-9 is 0.3 m/s; common practice, no source).
@@ -263,7 +263,7 @@ def rebin_flux_conserving(wave_in, flux_in, wave_out):
     a = xo - np.maximum(lo, x[0])
     b = np.minimum(hi, x[-1]) - xo
     a, b = np.where(clipped, np.minimum(a, b), a), np.where(clipped, np.minimum(a, b), b)
-    cum = np.concatenate([np.zeros(y.shape[:-1] + (1,)),
+    cum = np.concatenate([np.zeros((*y.shape[:-1], 1)),
                           np.cumsum(0.5 * (y[..., 1:] + y[..., :-1]) * np.diff(x), axis=-1)],
                          axis=-1)
 
@@ -384,7 +384,7 @@ def import_grid(folder, table, *, air=False, wave_unit=None, flux_unit=None, wav
                          f"(finest model step), resampled flux-conservingly")
 
     axes = {ax: np.unique(params[ax]) for ax in AXES}
-    log_flux = np.full(tuple(a.size for a in axes.values()) + (out.size,), np.nan, np.float32)
+    log_flux = np.full((*tuple(a.size for a in axes.values()), out.size), np.nan, np.float32)
     for r in range(n):
         idx = tuple(int(np.searchsorted(axes[ax], params[ax][r])) for ax in AXES)
         f = fluxes[r] if shared else rebin_flux_conserving(waves[r], fluxes[r], out)

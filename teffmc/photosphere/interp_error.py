@@ -37,7 +37,7 @@ import numpy as np
 from ..errors import GridError
 from .grid import AXES, Grid
 
-__all__ = ["leave_one_out_error", "interp_variance"]
+__all__ = ["interp_variance", "leave_one_out_error"]
 
 _POSITIONS = ("rms", "midpoint")
 _CACHE = weakref.WeakKeyDictionary()
