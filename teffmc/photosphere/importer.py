@@ -357,8 +357,10 @@ def import_grid(folder, table, *, air=False, wave_unit=None, flux_unit=None, wav
             raise GridError(f"{table}: row {r + 1}: model file {path} not found")
         units = (_row_value(cols, "wave_unit", r), _row_value(cols, "flux_unit", r))
         w, f, how = _read_model(path, units, _row_air(cols, r, table), air, wave_unit, flux_unit)
+        if waves and _same_axis(w, waves[-1]) and not how["native"]:
+            w = waves[-1]  # share one array per distinct axis (memory)
         waves.append(w)
-        fluxes.append(f)
+        fluxes.append(np.log10(f).astype(np.float32))  # what the grid stores
         hows.append(how)
 
     if wave is not None:
@@ -387,8 +389,11 @@ def import_grid(folder, table, *, air=False, wave_unit=None, flux_unit=None, wav
     log_flux = np.full((*tuple(a.size for a in axes.values()), out.size), np.nan, np.float32)
     for r in range(n):
         idx = tuple(int(np.searchsorted(axes[ax], params[ax][r])) for ax in AXES)
-        f = fluxes[r] if shared else rebin_flux_conserving(waves[r], fluxes[r], out)
-        log_flux[idx] = np.log10(f)
+        if shared:
+            log_flux[idx] = fluxes[r]
+        else:
+            f = rebin_flux_conserving(waves[r], 10.0 ** fluxes[r].astype(float), out)
+            log_flux[idx] = np.log10(f)
 
     prov = {
         "importer": "teffmc grid import (teffmc.photosphere.importer)",
