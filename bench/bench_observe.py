@@ -25,14 +25,26 @@ def _best(func, repeat=5, number=1):
 
 def bench_bandset(n_walkers=48):
     wave = np.geomspace(3000.0, 5.0e4, 20000)
-    bands = ["bessell-U", "bessell-B", "bessell-V", "bessell-R", "bessell-I", "twomass-J",
-             "twomass-H", "twomass-Ks", "gaiadr3-G", "wise2010-W1"]
+    bands = [
+        "bessell-U",
+        "bessell-B",
+        "bessell-V",
+        "bessell-R",
+        "bessell-I",
+        "twomass-J",
+        "twomass-H",
+        "twomass-Ks",
+        "gaiadr3-G",
+        "wise2010-W1",
+    ]
     t_build = _best(lambda: BandSet(bands, "vega", wave), repeat=3)
     bs = BandSet(bands, "vega", wave)
     flux = np.random.default_rng(0).uniform(1e-13, 2e-13, size=(n_walkers, wave.size))
     t_mags = _best(lambda: bs.mags(flux), number=200)
-    print(f"BandSet: {len(bands)} bands on {wave.size} model pixels: build {t_build * 1e3:.1f} ms; "
-          f"mags for {n_walkers} walkers {t_mags * 1e6:.0f} us per call")
+    print(
+        f"BandSet: {len(bands)} bands on {wave.size} model pixels: build {t_build * 1e3:.1f} ms; "
+        f"mags for {n_walkers} walkers {t_mags * 1e6:.0f} us per call"
+    )
 
 
 def bench_lsf(n_models=1000, n_in=10000, n_out=3000, resolution=2000.0):
@@ -42,8 +54,10 @@ def bench_lsf(n_models=1000, n_in=10000, n_out=3000, resolution=2000.0):
     matrix = lsf_matrix(wave_in, wave_out, resolution=resolution)
     grid = np.random.default_rng(1).uniform(1.0, 2.0, size=(10, 10, 10, n_in))
     t_apply = _best(lambda: apply_lsf(matrix, grid), repeat=3)
-    print(f"LSF: {n_in} -> {n_out} pixels at R={resolution:g} ({matrix.nnz} non-zeros): "
-          f"build {t_build * 1e3:.1f} ms; apply to {n_models} models {t_apply * 1e3:.0f} ms")
+    print(
+        f"LSF: {n_in} -> {n_out} pixels at R={resolution:g} ({matrix.nnz} non-zeros): "
+        f"build {t_build * 1e3:.1f} ms; apply to {n_models} models {t_apply * 1e3:.0f} ms"
+    )
 
 
 def bench_calibration(n_walkers=48, n_pix=3000, order=3):
@@ -53,15 +67,19 @@ def bench_calibration(n_walkers=48, n_pix=3000, order=3):
     model = rng.uniform(0.9, 1.1, size=(n_walkers, n_pix))
     data, var = model[0] + rng.normal(0, 0.01, n_pix), np.full(n_pix, 1e-4)
     t = _best(lambda: marginal_loglike(data, var, model, design, 0.05), number=100)
-    print(f"calibration marginalisation: {n_walkers} walkers x {n_pix} pixels, K={order + 1}: "
-          f"{t * 1e3:.2f} ms per call")
+    print(
+        f"calibration marginalisation: {n_walkers} walkers x {n_pix} pixels, K={order + 1}: "
+        f"{t * 1e3:.2f} ms per call"
+    )
 
 
 if __name__ == "__main__":
     import os
 
-    print(f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', 'unset')}, "
-          f"{os.cpu_count()} CPUs")
+    print(
+        f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', 'unset')}, "
+        f"{os.cpu_count()} CPUs"
+    )
     bench_bandset()
     bench_lsf()
     bench_calibration()

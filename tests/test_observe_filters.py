@@ -11,8 +11,20 @@ from astropy.table import Table
 from teffmc.errors import DataError
 from teffmc.observe import BandSet, get_filter, synth_mag, vega_spectrum
 
-BANDS = ["bessell-U", "bessell-B", "bessell-V", "bessell-R", "bessell-I", "twomass-J",
-         "twomass-H", "twomass-Ks", "sdss2010-r", "gaiadr2-G", "gaiadr3-BP", "wise2010-W1"]
+BANDS = [
+    "bessell-U",
+    "bessell-B",
+    "bessell-V",
+    "bessell-R",
+    "bessell-I",
+    "twomass-J",
+    "twomass-H",
+    "twomass-Ks",
+    "sdss2010-r",
+    "gaiadr2-G",
+    "gaiadr3-BP",
+    "wise2010-W1",
+]
 C_A_PER_S = 2.99792458e18  # [A/s], exact
 
 
@@ -34,7 +46,9 @@ def test_vega_v_in_both_systems():
     # Vega system definition (Bohlin & Gilliland 2004: V = 0.026 +- 0.008, rounded to 0.03);
     # on a resampled 2 A grid it is no longer an identity.
     grid = np.arange(3000.0, 12000.0, 2.0)
-    assert synth_mag(grid, np.interp(grid, wave, flux), "bessell-V") == pytest.approx(0.03, abs=0.002)
+    assert synth_mag(grid, np.interp(grid, wave, flux), "bessell-V") == pytest.approx(
+        0.03, abs=0.002
+    )
     # REFERENCES.md: V_AB(Vega) = +0.006 photon-counting (computed, speclite bessell-V)
     assert synth_mag(wave, flux, "bessell-V", "ab") == pytest.approx(0.006, abs=0.01)
 
@@ -43,8 +57,9 @@ def test_vega_v_in_both_systems():
 def test_flat_fnu_3631jy_is_ab_zero(band):
     # Oke & Gunn 1983: m_AB = -2.5 log10 f_nu - 48.60; 3631 Jy -> -6.6e-5 mag
     wave = np.geomspace(1000.0, 6.0e4, 40000)
-    flam = (3631 * u.Jy).to_value(u.erg / u.s / u.cm**2 / u.AA,
-                                  equivalencies=u.spectral_density(wave * u.AA))
+    flam = (3631 * u.Jy).to_value(
+        u.erg / u.s / u.cm**2 / u.AA, equivalencies=u.spectral_density(wave * u.AA)
+    )
     assert synth_mag(wave, flam, band, "ab") == pytest.approx(0.0, abs=0.001)
 
 
@@ -55,7 +70,9 @@ def test_ab_mags_agree_with_speclite(band):
     wave, flux = vega_spectrum()
     sel = (wave > 2000) & (wave < 60000)
     unit = u.erg / u.s / u.cm**2 / u.AA
-    expected = speclite.filters.load_filter(band).get_ab_magnitude(flux[sel] * unit, wave[sel] * u.AA)
+    expected = speclite.filters.load_filter(band).get_ab_magnitude(
+        flux[sel] * unit, wave[sel] * u.AA
+    )
     # speclite's own quadrature differs from an exact integral by up to 0.0011 mag
     # (bessell-R; measured against the dense sum in the next test), hence 2e-3.
     assert synth_mag(wave[sel], flux[sel], band, "ab") == pytest.approx(expected, abs=2e-3)
@@ -100,7 +117,6 @@ def test_bandset_matches_synth_mag_and_batches():
 
 
 def test_coarse_grid_close_to_fine_grid():
-    wave, flux = vega_spectrum()
     fine = np.arange(3000.0, 11000.0, 1.0)
     coarse = np.arange(3000.0, 11000.0, 25.0)
     smooth = 1e-12 * (fine / 5000) ** -3
@@ -132,7 +148,8 @@ def test_user_filter_curve(tmp_path):
     # a top-hat 5000-6000 A (in nm in the file); its AB mag of f_nu = 3631 Jy is 0
     wave = np.array([499.0, 500.0, 600.0, 601.0]) * u.nm
     Table([wave, [0.0, 1.0, 1.0, 0.0]], names=("wavelength", "response")).write(
-        tmp_path / "box.ecsv")
+        tmp_path / "box.ecsv"
+    )
     filt = get_filter(str(tmp_path / "box.ecsv"))
     assert filt.name == "box" and filt.wave_range == (4990.0, 6010.0)
     grid = np.linspace(4000.0, 7000.0, 3001)
@@ -148,7 +165,8 @@ def test_user_filter_errors(tmp_path):
     with pytest.raises(DataError, match="no unit"):
         get_filter(str(tmp_path / "a.ecsv"))
     Table([[1.0, 2.0] * u.um, [0.5, -1.0]], names=("wavelength", "response")).write(
-        tmp_path / "b.ecsv")
+        tmp_path / "b.ecsv"
+    )
     with pytest.raises(DataError, match="response should be") as info:
         get_filter(str(tmp_path / "b.ecsv"))
     assert info.value.column == "response" and info.value.value == -1.0

@@ -17,8 +17,10 @@ def _write(path, text):
 
 
 def test_read_mags_csv(tmp_path):
-    p = _write(tmp_path / "p.csv", "band,mag,err,system,floor\nbessell-V,5.10,0.01,vega,0.02\n"
-                                   "twomass-Ks,0.50,0.03,vega,0\n")
+    p = _write(
+        tmp_path / "p.csv",
+        "band,mag,err,system,floor\nbessell-V,5.10,0.01,vega,0.02\ntwomass-Ks,0.50,0.03,vega,0\n",
+    )
     phot = read_photometry(p)
     assert phot.bands == ("bessell-V", "twomass-Ks") and phot.system == ("vega", "vega")
     np.testing.assert_array_equal(phot.mag, [5.10, 0.50])
@@ -27,8 +29,9 @@ def test_read_mags_csv(tmp_path):
 
 def test_flux_in_jy_gives_ab_mag(tmp_path):
     # Oke & Gunn 1983: m_AB = -2.5 log10(f_nu / 3630.78 Jy); 36.31 Jy -> 5.0 mag
-    Table({"band": ["sdss2010-r"], "flux": [36.31] * u.Jy, "err": [0.3631] * u.Jy,
-           "system": ["ab"]}).write(tmp_path / "p.ecsv")
+    Table(
+        {"band": ["sdss2010-r"], "flux": [36.31] * u.Jy, "err": [0.3631] * u.Jy, "system": ["ab"]}
+    ).write(tmp_path / "p.ecsv")
     phot = read_photometry(tmp_path / "p.ecsv")
     assert phot.mag[0] == pytest.approx(5.0 - 2.5 * np.log10(3631 / 3630.78), abs=1e-4)
     assert phot.err[0] == pytest.approx(2.5 / np.log(10) * 0.01, rel=1e-9)
@@ -92,8 +95,10 @@ def test_bad_system_and_missing_columns(tmp_path):
 
 
 def test_user_filter_relative_to_table(tmp_path):
-    Table([[499.0, 500.0, 600.0, 601.0] * u.nm, [0.0, 1.0, 1.0, 0.0]],
-          names=("wavelength", "response")).write(tmp_path / "box.ecsv")
+    Table(
+        [[499.0, 500.0, 600.0, 601.0] * u.nm, [0.0, 1.0, 1.0, 0.0]],
+        names=("wavelength", "response"),
+    ).write(tmp_path / "box.ecsv")
     phot = read_photometry(_write(tmp_path / "p.csv", "band,mag,err,system\nbox.ecsv,7,0.1,ab\n"))
     assert phot.bands == (str(tmp_path / "box.ecsv"),)
     assert len(phot.bandset(np.linspace(4000.0, 7000.0, 500))) == 1

@@ -29,8 +29,14 @@ def arrays():
 
 def _write_wcs(path, wave, flux, err, ctype="WAVE", bunit=FLAM):
     hdr = fits.Header()
-    hdr.update(CTYPE1=ctype, CRVAL1=wave[0], CDELT1=wave[1] - wave[0], CRPIX1=1.0,
-               CUNIT1="Angstrom", BUNIT=bunit)
+    hdr.update(
+        CTYPE1=ctype,
+        CRVAL1=wave[0],
+        CDELT1=wave[1] - wave[0],
+        CRPIX1=1.0,
+        CUNIT1="Angstrom",
+        BUNIT=bunit,
+    )
     fits.HDUList([fits.PrimaryHDU(flux, hdr), fits.ImageHDU(err, name="ERR")]).writeto(path)
 
 
@@ -41,8 +47,10 @@ def _write_csv(path, wave, flux, err):
 
 
 def _table(wave, flux, err, flux_unit=FLAM):
-    return Table([wave * u.AA, flux * u.Unit(flux_unit), err * u.Unit(flux_unit)],
-                 names=("wavelength", "flux", "err"))
+    return Table(
+        [wave * u.AA, flux * u.Unit(flux_unit), err * u.Unit(flux_unit)],
+        names=("wavelength", "flux", "err"),
+    )
 
 
 def test_four_formats_read_back_identically(tmp_path, arrays):
@@ -80,7 +88,9 @@ def test_flux_units_agree_with_flambda(tmp_path, arrays, unit, factor):
 
 def test_plain_text_with_units_as_arguments(tmp_path, arrays):
     wave, flux, err = arrays
-    text = "\n".join(f"{w / 10:.17g} {f * 10:.17g} {e * 10:.17g}" for w, f, e in zip(wave, flux, err))
+    text = "\n".join(
+        f"{w / 10:.17g} {f * 10:.17g} {e * 10:.17g}" for w, f, e in zip(wave, flux, err)
+    )
     (tmp_path / "s.txt").write_text("# no header\n" + text + "\n")
     spec = read_spectrum(tmp_path / "s.txt", wave_unit="nm", flux_unit="W m-2 um-1")
     np.testing.assert_allclose(spec.wave, wave, rtol=1e-14)
@@ -109,17 +119,20 @@ def test_log_linear_wcs(tmp_path, arrays):
     _, flux, err = arrays
     n = flux.size
     hdr = fits.Header()
-    hdr.update(CTYPE1="WAVE-LOG", CRVAL1=6000.0, CDELT1=0.5, CRPIX1=1.0, CUNIT1="Angstrom",
-               BUNIT=FLAM)
+    hdr.update(
+        CTYPE1="WAVE-LOG", CRVAL1=6000.0, CDELT1=0.5, CRPIX1=1.0, CUNIT1="Angstrom", BUNIT=FLAM
+    )
     fits.HDUList([fits.PrimaryHDU(flux, hdr), fits.ImageHDU(err, name="ERR")]).writeto(
-        tmp_path / "log.fits")
+        tmp_path / "log.fits"
+    )
     # FITS paper III (Greisen et al. 2006) eq. 5: lambda = CRVAL1 exp(CDELT1 (p - CRPIX1) / CRVAL1)
     expected = 6000.0 * np.exp(0.5 * np.arange(n) / 6000.0)
     np.testing.assert_allclose(read_spectrum(tmp_path / "log.fits").wave, expected, rtol=1e-13)
     hdr.update(CTYPE1="WAVE", CRVAL1=np.log10(6000.0), CDELT1=1e-4)
     hdr["DC-FLAG"] = 1
     fits.HDUList([fits.PrimaryHDU(flux, hdr), fits.ImageHDU(err, name="ERR")]).writeto(
-        tmp_path / "log10.fits")
+        tmp_path / "log10.fits"
+    )
     expected = 10 ** (np.log10(6000.0) + 1e-4 * np.arange(n))
     np.testing.assert_allclose(read_spectrum(tmp_path / "log10.fits").wave, expected, rtol=1e-13)
 
@@ -131,7 +144,8 @@ def test_ivar_extension_masks_zero_weight(tmp_path, arrays):
     hdr = fits.Header()
     hdr.update(CTYPE1="WAVE", CRVAL1=wave[0], CDELT1=2.0, CUNIT1="Angstrom", BUNIT=FLAM)
     fits.HDUList([fits.PrimaryHDU(flux, hdr), fits.ImageHDU(ivar, name="IVAR")]).writeto(
-        tmp_path / "s.fits")
+        tmp_path / "s.fits"
+    )
     spec = read_spectrum(tmp_path / "s.fits")
     assert not spec.mask[10] and spec.n_used == wave.size - 1
     np.testing.assert_allclose(spec.err[spec.mask], np.delete(err, 10), rtol=1e-12)
@@ -229,8 +243,11 @@ def test_from_specutils_matches_file(tmp_path, arrays):
     wave, flux, err = arrays
     fnu_mjy = flux * wave**2 / C_A_PER_S / 1e-26
     ivar = 1.0 / (err * wave**2 / C_A_PER_S / 1e-26) ** 2
-    obj = specutils.Spectrum(flux=fnu_mjy * u.mJy, spectral_axis=wave / 10 * u.nm,
-                             uncertainty=InverseVariance(ivar / u.mJy**2))
+    obj = specutils.Spectrum(
+        flux=fnu_mjy * u.mJy,
+        spectral_axis=wave / 10 * u.nm,
+        uncertainty=InverseVariance(ivar / u.mJy**2),
+    )
     spec = from_specutils(obj)
     np.testing.assert_allclose(spec.wave, wave, rtol=1e-14)
     np.testing.assert_allclose(spec.flux, flux, rtol=1e-12)

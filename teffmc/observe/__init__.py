@@ -13,8 +13,8 @@ from teffmc.observe.calibration import (
     student_t_loglike,
 )
 from teffmc.observe.filters import Filter, get_filter, known_bands, vega_spectrum
-from teffmc.observe.photometry import Photometry, make_photometry, read_photometry
 from teffmc.observe.lsf import FWHM_PER_SIGMA, apply_lsf, convolve_resample, lsf_matrix
+from teffmc.observe.photometry import Photometry, make_photometry, read_photometry
 from teffmc.observe.spectrum import (
     TELLURIC_BANDS,
     Spectrum,
@@ -24,32 +24,32 @@ from teffmc.observe.spectrum import (
 )
 
 __all__ = [
-    "air_to_vacuum",
-    "vacuum_to_air",
-    "refractive_index_air",
-    "Spectrum",
-    "read_spectrum",
-    "from_specutils",
-    "apply_masks",
-    "TELLURIC_BANDS",
-    "lsf_matrix",
-    "apply_lsf",
-    "convolve_resample",
+    "AB_FNU0",
     "FWHM_PER_SIGMA",
+    "TELLURIC_BANDS",
+    "VEGA_MAG",
+    "BandSet",
+    "CalibrationPosterior",
     "Filter",
+    "Photometry",
+    "Spectrum",
+    "air_to_vacuum",
+    "apply_lsf",
+    "apply_masks",
+    "convolve_resample",
+    "from_specutils",
     "get_filter",
     "known_bands",
-    "vega_spectrum",
-    "BandSet",
-    "synth_mag",
-    "VEGA_MAG",
-    "AB_FNU0",
-    "Photometry",
-    "make_photometry",
-    "read_photometry",
     "legendre_design",
+    "lsf_matrix",
+    "make_photometry",
     "marginal_loglike",
     "posterior_calibration",
-    "CalibrationPosterior",
+    "read_photometry",
+    "read_spectrum",
+    "refractive_index_air",
     "student_t_loglike",
+    "synth_mag",
+    "vacuum_to_air",
+    "vega_spectrum",
 ]

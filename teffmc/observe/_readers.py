@@ -18,8 +18,17 @@ __all__ = ["read_raw"]
 _DEFAULT_NAMES = {
     "wave": ("wavelength", "wave", "lambda", "lam", "wl"),
     "flux": ("flux", "flam", "f_lambda", "flambda", "fnu", "f_nu"),
-    "err": ("err", "error", "flux_err", "flux_error", "sigma", "uncertainty", "unc",
-            "e_flux", "staterror"),
+    "err": (
+        "err",
+        "error",
+        "flux_err",
+        "flux_error",
+        "sigma",
+        "uncertainty",
+        "unc",
+        "e_flux",
+        "staterror",
+    ),
     "use": ("use", "good"),
 }
 _ERR_HDUS = ("ERR", "ERROR", "SIGMA", "UNCERT", "UNCERTAINTY", "STDDEV")
@@ -32,8 +41,12 @@ def _medium_from_text(value, path, column):
         return "air"
     if text in ("vacuum", "vac", "wave"):
         return "vacuum"
-    raise DataError(f"medium should be 'air' or 'vacuum' but got {value!r}",
-                    file=path, column=column, value=value)
+    raise DataError(
+        f"medium should be 'air' or 'vacuum' but got {value!r}",
+        file=path,
+        column=column,
+        value=value,
+    )
 
 
 def _pick_columns(names, columns, path):
@@ -46,8 +59,12 @@ def _pick_columns(names, columns, path):
         if columns is not None and role in columns:
             want = columns[role]
             if want not in names:
-                raise DataError(f"no column {want!r} (columns are {list(names)})",
-                                file=path, column=want, value=want)
+                raise DataError(
+                    f"no column {want!r} (columns are {list(names)})",
+                    file=path,
+                    column=want,
+                    value=want,
+                )
             chosen[role] = want
         else:
             found = [lower[d] for d in defaults if d in lower]
@@ -61,7 +78,8 @@ def _pick_columns(names, columns, path):
         if role not in chosen:
             raise DataError(
                 f"no {role} column found among {list(names)}; name it with columns={{'{role}': ...}}",
-                file=path, column=role,
+                file=path,
+                column=role,
             )
     return chosen
 
@@ -73,8 +91,12 @@ def _wcs_wavelengths(header, n, path):
     crval = float(header["CRVAL1"])
     cdelt = float(header.get("CDELT1", header.get("CD1_1", np.nan)))
     if not np.isfinite(cdelt) or cdelt == 0:
-        raise DataError(f"CDELT1/CD1_1 should be non-zero but got {cdelt}",
-                        file=path, column="CDELT1", value=cdelt)
+        raise DataError(
+            f"CDELT1/CD1_1 should be non-zero but got {cdelt}",
+            file=path,
+            column="CDELT1",
+            value=cdelt,
+        )
     offset = np.arange(1, n + 1) - float(header.get("CRPIX1", 1.0))  # FITS pixels are 1-based
     ctype = str(header.get("CTYPE1", "")).strip().upper()
     if ctype.endswith("-LOG"):
@@ -91,8 +113,12 @@ def _read_fits_image(hdul, index, path):
     header = hdu.header
     flux = np.asarray(hdu.data, dtype=float)
     if flux.ndim != 1:
-        raise DataError(f"image HDU {index} should be 1-D but has shape {flux.shape}",
-                        file=path, column=f"HDU{index}", value=flux.shape)
+        raise DataError(
+            f"image HDU {index} should be 1-D but has shape {flux.shape}",
+            file=path,
+            column=f"HDU{index}",
+            value=flux.shape,
+        )
     ctype = str(header.get("CTYPE1", "")).strip().upper()
     medium = {"AWAV": "air", "WAVE": "vacuum"}.get(ctype.split("-")[0]) if ctype else None
     err, err_unit, err_label = None, None, None
@@ -107,16 +133,26 @@ def _read_fits_image(hdul, index, path):
                     err = np.where(err >= 0, 1.0 / np.sqrt(err), -1.0)
             elif label in ("VAR", "VARIANCE"):
                 err = np.where(err >= 0, np.sqrt(np.abs(err)), -1.0)
-            err_unit = ehdu.header.get("BUNIT") if label not in ("IVAR", "VAR", "VARIANCE") else None
+            err_unit = (
+                ehdu.header.get("BUNIT") if label not in ("IVAR", "VAR", "VARIANCE") else None
+            )
             err_label = label
             break
     if err is None:
-        raise DataError(f"no error extension (one of {', '.join(_ERR_HDUS + ('IVAR', 'VAR'))})",
-                        file=path, column="err")
+        raise DataError(
+            f"no error extension (one of {', '.join(_ERR_HDUS + ('IVAR', 'VAR'))})",
+            file=path,
+            column="err",
+        )
     return {
-        "wave": _wcs_wavelengths(header, flux.size, path), "flux": flux, "err": err,
-        "use": None, "wave_unit": header.get("CUNIT1"), "flux_unit": header.get("BUNIT"),
-        "err_unit": err_unit, "medium": medium,
+        "wave": _wcs_wavelengths(header, flux.size, path),
+        "flux": flux,
+        "err": err,
+        "use": None,
+        "wave_unit": header.get("CUNIT1"),
+        "flux_unit": header.get("BUNIT"),
+        "err_unit": err_unit,
+        "medium": medium,
         "names": {"wave": "CTYPE1", "flux": hdu.name or f"HDU{index}", "err": err_label},
     }
 
@@ -133,10 +169,12 @@ def _read_fits_table(hdu, path, columns):
 def _assemble(raw, units, chosen, medium, path):
     use = raw.get("use")
     return {
-        "wave": np.asarray(raw["wave"], dtype=float), "flux": np.asarray(raw["flux"], dtype=float),
+        "wave": np.asarray(raw["wave"], dtype=float),
+        "flux": np.asarray(raw["flux"], dtype=float),
         "err": np.asarray(raw["err"], dtype=float),
         "use": None if use is None else np.asarray(use).astype(bool),
-        "wave_unit": units.get("wave"), "flux_unit": units.get("flux"),
+        "wave_unit": units.get("wave"),
+        "flux_unit": units.get("flux"),
         "err_unit": units.get("err"),
         "medium": None if medium is None else _medium_from_text(medium, path, "medium"),
         "names": dict(chosen),
@@ -163,8 +201,11 @@ def _read_ecsv(path, columns):
     raw, units = {}, {}
     for role, name in chosen.items():
         col = table[name]
-        raw[role] = np.ma.filled(np.ma.asarray(col, dtype=float), np.nan) if role != "use" \
+        raw[role] = (
+            np.ma.filled(np.ma.asarray(col, dtype=float), np.nan)
+            if role != "use"
             else np.asarray(col)
+        )
         units[role] = col.unit
     medium = table.meta.get("medium")
     return _assemble(raw, units, chosen, medium, path)

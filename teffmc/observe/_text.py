@@ -78,7 +78,8 @@ def read_text_table(path):
         if len(fields) != len(names):
             raise DataError(
                 f"line {number} has {len(fields)} fields but the table has {len(names)} columns",
-                file=path, value=len(fields),
+                file=path,
+                value=len(fields),
             )
     data = np.array([fields for _, fields in rows], dtype=str)
     columns = {name: data[:, i] for i, name in enumerate(names)}
@@ -97,6 +98,8 @@ def to_float(values, *, file=None, column=None):
         except ValueError:
             raise DataError(
                 f"row {i + 1}: should be a number but got {str(text)!r}",
-                file=file, column=column, value=str(text),
+                file=file,
+                column=column,
+                value=str(text),
             ) from None
     return out

@@ -7,7 +7,7 @@ import numpy as np
 
 from teffmc.errors import DataError
 
-__all__ = ["FLAM", "parse_unit", "wave_to_A", "flux_to_flam"]
+__all__ = ["FLAM", "flux_to_flam", "parse_unit", "wave_to_A"]
 
 FLAM = u.erg / u.s / u.cm**2 / u.AA
 
@@ -46,7 +46,9 @@ def parse_unit(text, *, file=None, column=None):
             warnings.filterwarnings("ignore", message=".*multiple slashes", category=u.UnitsWarning)
             return u.Unit(key)
     except ValueError:
-        raise DataError(f"cannot read unit {text!r}", file=file, column=column, value=text) from None
+        raise DataError(
+            f"cannot read unit {text!r}", file=file, column=column, value=text
+        ) from None
 
 
 def wave_to_A(values, unit, *, file=None, column=None):
@@ -55,7 +57,9 @@ def wave_to_A(values, unit, *, file=None, column=None):
     if "length" not in set(unit.physical_type):
         raise DataError(
             f"wavelength unit should be a length but got {unit} ({unit.physical_type})",
-            file=file, column=column, value=str(unit),
+            file=file,
+            column=column,
+            value=str(unit),
         )
     factor = unit.to(u.AA)
     # nm -> A comes out as 9.999999999999998; snap factors that are meant to be
@@ -83,7 +87,9 @@ def flux_to_flam(values, unit, wave_A, *, file=None, column=None):
         raise DataError(
             f"unit should be a flux density (per wavelength or per frequency) but got "
             f"{unit} ({unit.physical_type})",
-            file=file, column=column, value=str(unit),
+            file=file,
+            column=column,
+            value=str(unit),
         )
     equiv = u.spectral_density(np.asarray(wave_A, dtype=float) * u.AA)
     return (np.asarray(values, dtype=float) * unit).to_value(FLAM, equivalencies=equiv)

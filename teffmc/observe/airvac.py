@@ -13,7 +13,7 @@ below 2000 A are not converted; in air the cut is at the air image of 2000 A
 
 import numpy as np
 
-__all__ = ["air_to_vacuum", "vacuum_to_air", "refractive_index_air"]
+__all__ = ["air_to_vacuum", "refractive_index_air", "vacuum_to_air"]
 
 # Below this wavelength [A] both systems are vacuum (common practice, no source).
 _AIR_MIN_A = 2000.0

@@ -29,7 +29,7 @@ import numpy as np
 from teffmc.errors import DataError
 from teffmc.observe.filters import get_filter, vega_spectrum
 
-__all__ = ["BandSet", "synth_mag", "VEGA_MAG", "AB_FNU0", "C_A_PER_S"]
+__all__ = ["AB_FNU0", "C_A_PER_S", "VEGA_MAG", "BandSet", "synth_mag"]
 
 VEGA_MAG = 0.03  # Bohlin & Gilliland 2004 V = 0.026 +- 0.008, rounded (common practice)
 AB_FNU0 = 10.0 ** (-0.4 * 48.60)  # [erg s^-1 cm^-2 Hz^-1], Oke & Gunn 1983: 3630.78 Jy
@@ -43,7 +43,9 @@ def _band_weights(filt, x):
     if x[0] > lo or x[-1] < hi:
         raise DataError(
             f"band {filt.name} needs {lo:.6g}-{hi:.6g} A but the wavelength grid covers "
-            f"{x[0]:.6g}-{x[-1]:.6g} A", column="band", value=filt.name,
+            f"{x[0]:.6g}-{x[-1]:.6g} A",
+            column="band",
+            value=filt.name,
         )
     inside = (filt.wave >= lo) & (filt.wave <= hi)
     u = np.union1d(x[(x >= lo) & (x <= hi)], filt.wave[inside])
@@ -66,8 +68,9 @@ def _band_weights(filt, x):
 def _check_grid(wave):
     x = np.asarray(wave, dtype=float)
     if x.ndim != 1 or x.size < 2 or not (np.diff(x) > 0).all():
-        raise DataError("wavelength grid should be 1-D and strictly increasing",
-                        column="wave", value=x.shape)
+        raise DataError(
+            "wavelength grid should be 1-D and strictly increasing", column="wave", value=x.shape
+        )
     return x
 
 
@@ -111,14 +114,20 @@ class BandSet:
             systems = [systems] * len(self.filters)
         self.systems = tuple(str(s).lower() for s in systems)
         if len(self.systems) != len(self.filters):
-            raise DataError(f"{len(self.systems)} systems for {len(self.filters)} bands",
-                            column="system", value=len(self.systems))
+            raise DataError(
+                f"{len(self.systems)} systems for {len(self.filters)} bands",
+                column="system",
+                value=len(self.systems),
+            )
         for s in self.systems:
             if s not in _SYSTEMS:
-                raise DataError(f"system should be 'vega' or 'ab' but got {s!r}",
-                                column="system", value=s)
+                raise DataError(
+                    f"system should be 'vega' or 'ab' but got {s!r}", column="system", value=s
+                )
         self.wave = _check_grid(wave_model)
-        raw = np.array([_band_weights(f, self.wave) for f in self.filters]).reshape(-1, self.wave.size)
+        raw = np.array([_band_weights(f, self.wave) for f in self.filters]).reshape(
+            -1, self.wave.size
+        )
         norm = raw.sum(axis=1)  # int R lambda dlambda
         ref = np.empty(len(self.filters))
         zp = np.zeros(len(self.filters))
@@ -140,6 +149,7 @@ class BandSet:
         self.pivot = np.array([f.pivot_wavelength for f in self.filters])
 
     def __len__(self):
+        """Return the number of bands."""
         return len(self.filters)
 
     def ratio(self, flux):
@@ -175,7 +185,7 @@ _VEGA_CACHE = {}
 
 
 def _vega_band_flux(filt):
-    """int F_Vega R lambda dlambda on the CALSPEC grid (cached per filter)."""
+    """Integrate F_Vega R lambda dlambda on the CALSPEC grid (cached per filter)."""
     key = (filt.name, filt.source, filt.wave.tobytes(), filt.response.tobytes())
     if key not in _VEGA_CACHE:
         wave, flux = vega_spectrum()

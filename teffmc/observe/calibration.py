@@ -38,10 +38,10 @@ from scipy.special import gammaln
 from teffmc.errors import ConfigError, DataError
 
 __all__ = [
+    "CalibrationPosterior",
     "legendre_design",
     "marginal_loglike",
     "posterior_calibration",
-    "CalibrationPosterior",
     "student_t_loglike",
 ]
 
@@ -63,8 +63,9 @@ def legendre_design(wave, order):
     ndarray, shape (n_pix, order + 1)
     """
     if int(order) != order or order < 0:
-        raise ConfigError(f"should be an integer >= 0 but got {order}", key="calibration_order",
-                          value=order)
+        raise ConfigError(
+            f"should be an integer >= 0 but got {order}", key="calibration_order", value=order
+        )
     w = np.asarray(wave, dtype=float)
     span = w.max() - w.min()
     x = 2.0 * (w - w.min()) / span - 1.0 if span > 0 else np.zeros_like(w)
@@ -87,8 +88,11 @@ def _normal_equations(data, var, model, design, prior_sigma):
     n, k = A.shape
     for label, arr in (("data", d), ("var", s2), ("model", m)):
         if arr.shape[-1] != n:
-            raise DataError(f"last axis should have {n} pixels (design rows) but has shape "
-                            f"{arr.shape}", column=label, value=arr.shape)
+            raise DataError(
+                f"last axis should have {n} pixels (design rows) but has shape {arr.shape}",
+                column=label,
+                value=arr.shape,
+            )
     lam = _prior_var(prior_sigma, k)
     iv = 1.0 / s2
     r = d - m
@@ -124,13 +128,13 @@ def marginal_loglike(data, var, model, design, prior_sigma):
     ndarray, shape (n_walkers,) (or () for a 1-D model)
         log N(d - m; 0, S + B Lambda B^T), see the module notes.
     """
-    M, b, chi2, logdet_s, logdet_lam, n, _ = _normal_equations(data, var, model, design,
-                                                               prior_sigma)
+    M, b, chi2, logdet_s, logdet_lam, n, _ = _normal_equations(
+        data, var, model, design, prior_sigma
+    )
     L = np.linalg.cholesky(M)
     y = np.linalg.solve(L, b[..., None])[..., 0]  # b^T M^-1 b = |L^-1 b|^2
     logdet_m = 2.0 * np.sum(np.log(np.diagonal(L, axis1=-2, axis2=-1)), axis=-1)
-    return -0.5 * (chi2 - np.sum(y * y, axis=-1) + logdet_s + logdet_lam + logdet_m
-                   + n * _LOG_2PI)
+    return -0.5 * (chi2 - np.sum(y * y, axis=-1) + logdet_s + logdet_lam + logdet_m + n * _LOG_2PI)
 
 
 class CalibrationPosterior(NamedTuple):

@@ -15,7 +15,7 @@ import numpy as np
 from teffmc.errors import DataError
 from teffmc.observe._units import wave_to_A
 
-__all__ = ["Filter", "get_filter", "known_bands", "vega_spectrum", "VEGA_FILE"]
+__all__ = ["VEGA_FILE", "Filter", "get_filter", "known_bands", "vega_spectrum"]
 
 VEGA_FILE = "alpha_lyr_stis_011.fits"  # CALSPEC; see teffmc/data/vega/PROVENANCE.txt
 
@@ -72,8 +72,9 @@ class Filter:
 def known_bands():
     """Names of the filters shipped with speclite (``group-band``), sorted."""
     folder = resources.files("speclite") / "data" / "filters"
-    return tuple(sorted(p.name[: -len(".ecsv")] for p in folder.iterdir()
-                        if p.name.endswith(".ecsv")))
+    return tuple(
+        sorted(p.name[: -len(".ecsv")] for p in folder.iterdir() if p.name.endswith(".ecsv"))
+    )
 
 
 @functools.cache
@@ -93,21 +94,32 @@ def _user_filter(path):
         raise DataError("filter file not found", file=path) from None
     for col in ("wavelength", "response"):
         if col not in table.colnames:
-            raise DataError(f"filter curve needs columns wavelength, response; has "
-                            f"{table.colnames}", file=path, column=col)
+            raise DataError(
+                f"filter curve needs columns wavelength, response; has {table.colnames}",
+                file=path,
+                column=col,
+            )
     unit = table["wavelength"].unit
     if unit is None:
         raise DataError("wavelength column has no unit", file=path, column="wavelength")
     wave = wave_to_A(table["wavelength"], unit, file=path, column="wavelength")
     resp = np.asarray(table["response"], dtype=float)
     if not (np.isfinite(wave).all() and (np.diff(wave) > 0).all()):
-        raise DataError("wavelengths should be finite and strictly increasing", file=path,
-                        column="wavelength", value=wave[np.argmin(np.diff(wave))])
+        raise DataError(
+            "wavelengths should be finite and strictly increasing",
+            file=path,
+            column="wavelength",
+            value=wave[np.argmin(np.diff(wave))],
+        )
     bad = np.flatnonzero(~np.isfinite(resp) | (resp < 0))
     if bad.size or not (resp > 0).any():
         value = resp[bad[0]] if bad.size else 0.0
-        raise DataError(f"response should be finite, >= 0 and somewhere > 0 but got {value}",
-                        file=path, column="response", value=value)
+        raise DataError(
+            f"response should be finite, >= 0 and somewhere > 0 but got {value}",
+            file=path,
+            column="response",
+            value=value,
+        )
     return Filter(Path(path).stem, _readonly(wave), _readonly(resp), str(path))
 
 
@@ -141,7 +153,7 @@ def get_filter(band, *, file=None, column="band"):
 
 @functools.cache
 def vega_spectrum():
-    """The shipped CALSPEC Vega spectrum (alpha_lyr_stis_011).
+    """Return the shipped CALSPEC Vega spectrum (alpha_lyr_stis_011).
 
     Returns
     -------

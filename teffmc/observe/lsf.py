@@ -21,7 +21,7 @@ from scipy.special import ndtr
 
 from teffmc.errors import ConfigError, DataError
 
-__all__ = ["lsf_matrix", "apply_lsf", "convolve_resample", "FWHM_PER_SIGMA"]
+__all__ = ["FWHM_PER_SIGMA", "apply_lsf", "convolve_resample", "lsf_matrix"]
 
 FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))  # 2.3548..., Gaussian FWHM / sigma
 _NSIGMA = 5.0
@@ -31,20 +31,29 @@ _MIN_COVERAGE = 1.0 - 1e-3  # refuse output pixels whose kernel leaves the input
 def _check_axis(wave, label):
     wave = np.asarray(wave, dtype=float)
     if wave.ndim != 1 or wave.size < 2:
-        raise DataError(f"should be a 1-D array of >= 2 wavelengths but has shape {wave.shape}",
-                        column=label, value=wave.shape)
+        raise DataError(
+            f"should be a 1-D array of >= 2 wavelengths but has shape {wave.shape}",
+            column=label,
+            value=wave.shape,
+        )
     bad = np.flatnonzero(~(np.diff(wave) > 0))
     if bad.size or not np.isfinite(wave).all():
         i = bad[0] + 1 if bad.size else int(np.flatnonzero(~np.isfinite(wave))[0])
-        raise DataError(f"wavelengths should be finite and strictly increasing; index {i} is "
-                        f"{wave[i]}", column=label, value=wave[i])
+        raise DataError(
+            f"wavelengths should be finite and strictly increasing; index {i} is {wave[i]}",
+            column=label,
+            value=wave[i],
+        )
     return wave
 
 
 def _sigma(wave_out, resolution, fwhm_A):
     if (resolution is None) == (fwhm_A is None):
-        raise ConfigError("give exactly one of resolution (R) and fwhm_A", key="resolution",
-                          value=(resolution, fwhm_A))
+        raise ConfigError(
+            "give exactly one of resolution (R) and fwhm_A",
+            key="resolution",
+            value=(resolution, fwhm_A),
+        )
     key, value = ("resolution", resolution) if resolution is not None else ("fwhm_A", fwhm_A)
     value = np.broadcast_to(np.asarray(value, dtype=float), wave_out.shape)
     if not (np.isfinite(value).all() and (value > 0).all()):
@@ -77,8 +86,9 @@ def lsf_matrix(wave_in, wave_out, *, resolution=None, fwhm_A=None):
     x = _check_axis(wave_in, "wave_in")
     y = _check_axis(wave_out, "wave_out")
     sigma = _sigma(y, resolution, fwhm_A)
-    edges = np.concatenate(([1.5 * x[0] - 0.5 * x[1]], 0.5 * (x[1:] + x[:-1]),
-                            [1.5 * x[-1] - 0.5 * x[-2]]))
+    edges = np.concatenate(
+        ([1.5 * x[0] - 0.5 * x[1]], 0.5 * (x[1:] + x[:-1]), [1.5 * x[-1] - 0.5 * x[-2]])
+    )
     j0 = np.clip(np.searchsorted(edges, y - _NSIGMA * sigma, "right") - 1, 0, x.size - 1)
     j1 = np.clip(np.searchsorted(edges, y + _NSIGMA * sigma, "left"), 1, x.size)
     counts = np.maximum(j1 - j0, 1)
@@ -90,14 +100,16 @@ def lsf_matrix(wave_in, wave_out, *, resolution=None, fwhm_A=None):
     # Difference of CDFs taken on the side where it does not cancel.
     weight = np.where(z_lo > 0, ndtr(-z_lo) - ndtr(-z_hi), ndtr(z_hi) - ndtr(z_lo))
     coverage = ndtr(np.minimum((edges[-1] - y) / sigma, _NSIGMA)) - ndtr(
-        np.maximum((edges[0] - y) / sigma, -_NSIGMA))
+        np.maximum((edges[0] - y) / sigma, -_NSIGMA)
+    )
     short = np.flatnonzero(coverage < _MIN_COVERAGE)
     if short.size:
         i = short[0]
         raise DataError(
             f"output wavelength {y[i]:.6g} A needs input from {y[i] - 3.3 * sigma[i]:.6g} to "
             f"{y[i] + 3.3 * sigma[i]:.6g} A but the input covers {edges[0]:.6g}-{edges[-1]:.6g} A",
-            column="wave_out", value=y[i],
+            column="wave_out",
+            value=y[i],
         )
     norm = np.bincount(rows, weights=weight, minlength=y.size)
     return sparse.csr_matrix((weight / norm[rows], (rows, cols)), shape=(y.size, x.size))
@@ -119,8 +131,11 @@ def apply_lsf(matrix, flux_in):
     flux = np.asarray(flux_in, dtype=float)
     n_out, n_in = matrix.shape
     if flux.shape[-1] != n_in:
-        raise DataError(f"last axis should have {n_in} pixels but has {flux.shape[-1]}",
-                        column="flux_in", value=flux.shape)
+        raise DataError(
+            f"last axis should have {n_in} pixels but has {flux.shape[-1]}",
+            column="flux_in",
+            value=flux.shape,
+        )
     lead = flux.shape[:-1]
     flat = flux.reshape(-1, n_in)
     out = np.asarray(matrix @ flat.T).T

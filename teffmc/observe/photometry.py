@@ -25,8 +25,14 @@ import numpy as np
 from teffmc.errors import DataError
 from teffmc.observe._text import read_text_table, to_float
 from teffmc.observe._units import flux_to_flam, parse_unit
-from teffmc.observe.bandset import AB_FNU0, C_A_PER_S, VEGA_MAG, BandSet, _band_weights, \
-    _vega_band_flux
+from teffmc.observe.bandset import (
+    AB_FNU0,
+    C_A_PER_S,
+    VEGA_MAG,
+    BandSet,
+    _band_weights,
+    _vega_band_flux,
+)
 from teffmc.observe.filters import get_filter, vega_spectrum
 
 __all__ = ["Photometry", "make_photometry", "read_photometry"]
@@ -68,6 +74,7 @@ class Photometry:
     source: str | None = None
 
     def __len__(self):
+        """Return the number of measurements."""
         return len(self.bands)
 
     @property
@@ -76,7 +83,7 @@ class Photometry:
         return np.hypot(self.err, self.floor)
 
     def bandset(self, wave_model, *, vega_mag=VEGA_MAG):
-        """A :class:`~teffmc.observe.bandset.BandSet` for these bands on a model grid."""
+        """Build a :class:`~teffmc.observe.bandset.BandSet` for these bands on a model grid."""
         return BandSet(self.bands, self.system, wave_model, vega_mag=vega_mag)
 
 
@@ -89,26 +96,43 @@ def make_photometry(bands, mag, err, system, floor=None, *, source=None):
     cols = {"mag": mag, "err": err, "system": system, "floor": floor}
     for name, values in cols.items():
         if len(np.atleast_1d(values)) != n:
-            raise DataError(f"has {len(np.atleast_1d(values))} values but there are {n} bands",
-                            file=source, column=name, value=len(np.atleast_1d(values)))
+            raise DataError(
+                f"has {len(np.atleast_1d(values))} values but there are {n} bands",
+                file=source,
+                column=name,
+                value=len(np.atleast_1d(values)),
+            )
     for band in bands:
         get_filter(band, file=source)
     system = tuple(str(s).strip().lower() for s in system)
     for s in system:
         if s not in ("vega", "ab"):
-            raise DataError(f"should be 'vega' or 'ab' but got {s!r}", file=source,
-                            column="system", value=s)
+            raise DataError(
+                f"should be 'vega' or 'ab' but got {s!r}", file=source, column="system", value=s
+            )
     mag, err, floor = (np.asarray(v, dtype=float).reshape(n) for v in (mag, err, floor))
-    for name, values, ok in (("mag", mag, np.isfinite(mag)),
-                             ("err", err, np.isfinite(err) & (err > 0)),
-                             ("floor", floor, np.isfinite(floor) & (floor >= 0))):
+    for name, values, ok in (
+        ("mag", mag, np.isfinite(mag)),
+        ("err", err, np.isfinite(err) & (err > 0)),
+        ("floor", floor, np.isfinite(floor) & (floor >= 0)),
+    ):
         if not ok.all():
             i = int(np.flatnonzero(~ok)[0])
             need = {"mag": "finite", "err": "finite and > 0", "floor": "finite and >= 0"}[name]
-            raise DataError(f"row {i + 1} ({bands[i]}): should be {need} but got {values[i]:g}",
-                            file=source, column=name, value=values[i])
-    return Photometry(bands, _readonly(mag), _readonly(err), system, _readonly(floor),
-                      None if source is None else str(source))
+            raise DataError(
+                f"row {i + 1} ({bands[i]}): should be {need} but got {values[i]:g}",
+                file=source,
+                column=name,
+                value=values[i],
+            )
+    return Photometry(
+        bands,
+        _readonly(mag),
+        _readonly(err),
+        system,
+        _readonly(floor),
+        None if source is None else str(source),
+    )
 
 
 def _flux_to_mag(flux, err, unit, band, system, path, row):
@@ -118,8 +142,12 @@ def _flux_to_mag(flux, err, unit, band, system, path, row):
     flam = flux_to_flam(flux, unit, pivot, file=path, column="flux")
     eflam = flux_to_flam(err, unit, pivot, file=path, column="err")
     if not flam > 0:
-        raise DataError(f"row {row} ({band}): flux should be > 0 but got {flux:g}", file=path,
-                        column="flux", value=flux)
+        raise DataError(
+            f"row {row} ({band}): flux should be > 0 but got {flux:g}",
+            file=path,
+            column="flux",
+            value=flux,
+        )
     if system == "ab":
         mag = -2.5 * np.log10(flam * pivot**2 / C_A_PER_S / AB_FNU0)
     else:
@@ -170,38 +198,59 @@ def read_photometry(path):
         raise DataError("file not found", file=path) from None
     for need in ("band", "err", "system"):
         if need not in values:
-            raise DataError(f"missing column {need!r} (columns are {list(values)})",
-                            file=path, column=need)
+            raise DataError(
+                f"missing column {need!r} (columns are {list(values)})", file=path, column=need
+            )
     if ("mag" in values) == ("flux" in values):
-        raise DataError("give exactly one of the columns 'mag' and 'flux'", file=path,
-                        column="mag" if "mag" in values else "flux")
+        raise DataError(
+            "give exactly one of the columns 'mag' and 'flux'",
+            file=path,
+            column="mag" if "mag" in values else "flux",
+        )
     folder = Path(path).parent
-    bands = [b if not (b.lower().endswith(".ecsv") and not Path(b).is_absolute())
-             else str(folder / b) for b in (str(x).strip() for x in values["band"])]
+    bands = [
+        b if not (b.lower().endswith(".ecsv") and not Path(b).is_absolute()) else str(folder / b)
+        for b in (str(x).strip() for x in values["band"])
+    ]
     for band in bands:
         get_filter(band, file=path)
     system = [str(s).strip().lower() for s in values["system"]]
     for i, s in enumerate(system):
         if s not in ("vega", "ab"):
-            raise DataError(f"row {i + 1}: should be 'vega' or 'ab' but got {s!r}", file=path,
-                            column="system", value=s)
+            raise DataError(
+                f"row {i + 1}: should be 'vega' or 'ab' but got {s!r}",
+                file=path,
+                column="system",
+                value=s,
+            )
     err = np.asarray(values["err"], dtype=float)
     if "mag" in values:
         unit = units.get("mag")
         if unit is not None and str(unit) not in ("mag", ""):
-            raise DataError(f"mag column unit should be mag but got {unit}", file=path,
-                            column="mag", value=str(unit))
+            raise DataError(
+                f"mag column unit should be mag but got {unit}",
+                file=path,
+                column="mag",
+                value=str(unit),
+            )
         mag = values["mag"]
     else:
         if "flux" not in units:
-            raise DataError("flux column has no unit (use 'flux [mJy]' or '# flux_unit: mJy')",
-                            file=path, column="flux")
+            raise DataError(
+                "flux column has no unit (use 'flux [mJy]' or '# flux_unit: mJy')",
+                file=path,
+                column="flux",
+            )
         unit = parse_unit(units["flux"], file=path, column="flux")
         pairs = []
         for i, (f, e, b, s) in enumerate(zip(values["flux"], err, bands, system)):
             if not (np.isfinite(e) and e > 0):
-                raise DataError(f"row {i + 1} ({b}): should be finite and > 0 but got {e:g}",
-                                file=path, column="err", value=e)
+                raise DataError(
+                    f"row {i + 1} ({b}): should be finite and > 0 but got {e:g}",
+                    file=path,
+                    column="err",
+                    value=e,
+                )
             pairs.append(_flux_to_mag(f, e, unit, b, s, path, i + 1))
         mag, err = (np.array(v, dtype=float) for v in zip(*pairs))
     return make_photometry(bands, mag, err, system, values.get("floor"), source=path)

@@ -17,7 +17,7 @@ from teffmc.observe._readers import read_raw
 from teffmc.observe._units import flux_to_flam, wave_to_A
 from teffmc.observe.airvac import air_to_vacuum
 
-__all__ = ["Spectrum", "read_spectrum", "from_specutils", "apply_masks", "TELLURIC_BANDS"]
+__all__ = ["TELLURIC_BANDS", "Spectrum", "apply_masks", "from_specutils", "read_spectrum"]
 
 # Telluric absorption bands [A] (REFERENCES.md; common practice, no source):
 # O2 B, H2O, O2 A, H2O, H2O. Their edges are approximate; the ~2 A air/vacuum
@@ -70,10 +70,15 @@ class Spectrum:
         return int(np.count_nonzero(self.mask))
 
     def used(self):
-        """A copy holding only the pixels to use."""
+        """Return a copy holding only the pixels to use."""
         m = self.mask
-        return replace(self, wave=_readonly(self.wave[m], float), flux=_readonly(self.flux[m], float),
-                       err=_readonly(self.err[m], float), mask=_readonly(self.mask[m], bool))
+        return replace(
+            self,
+            wave=_readonly(self.wave[m], float),
+            flux=_readonly(self.flux[m], float),
+            err=_readonly(self.err[m], float),
+            mask=_readonly(self.mask[m], bool),
+        )
 
 
 def make_spectrum(wave_A, flux, err, use=None, *, name="spectrum", source=None, names=None):
@@ -91,39 +96,65 @@ def make_spectrum(wave_A, flux, err, use=None, *, name="spectrum", source=None, 
         if arr.shape != wave.shape or wave.ndim != 1:
             raise DataError(
                 f"should have the same 1-D length as {names['wave']} ({wave.shape}) "
-                f"but has shape {arr.shape}", file=source, column=names[role], value=arr.shape,
+                f"but has shape {arr.shape}",
+                file=source,
+                column=names[role],
+                value=arr.shape,
             )
     bad = np.flatnonzero(~np.isfinite(wave) | (wave <= 0))
     if bad.size:
-        raise DataError(f"row {bad[0] + 1}: wavelength should be finite and > 0 but got "
-                        f"{wave[bad[0]]}", file=source, column=names["wave"], value=wave[bad[0]])
+        raise DataError(
+            f"row {bad[0] + 1}: wavelength should be finite and > 0 but got {wave[bad[0]]}",
+            file=source,
+            column=names["wave"],
+            value=wave[bad[0]],
+        )
     step = np.flatnonzero(np.diff(wave) <= 0)
     if step.size:
         i = step[0]
         raise DataError(
             f"wavelengths should increase strictly but row {i + 2} ({wave[i + 1]:.6g} A) follows "
-            f"{wave[i]:.6g} A", file=source, column=names["wave"], value=wave[i + 1],
+            f"{wave[i]:.6g} A",
+            file=source,
+            column=names["wave"],
+            value=wave[i + 1],
         )
     nonpos = np.flatnonzero(np.isfinite(err) & (err <= 0))
     if nonpos.size:
         i = nonpos[0]
-        raise DataError(f"row {i + 1}: error should be > 0 but got {err[i]:g}",
-                        file=source, column=names["err"], value=err[i])
+        raise DataError(
+            f"row {i + 1}: error should be > 0 but got {err[i]:g}",
+            file=source,
+            column=names["err"],
+            value=err[i],
+        )
     mask = use & np.isfinite(flux) & np.isfinite(err)
     if not mask.any():
-        raise DataError(f"all {wave.size} pixels are masked (non-finite flux/error or flagged)",
-                        file=source, column=names["flux"])
-    return Spectrum(wave=_readonly(wave, float), flux=_readonly(flux, float),
-                    err=_readonly(err, float), mask=_readonly(mask, bool), name=name,
-                    source=None if source is None else str(source))
+        raise DataError(
+            f"all {wave.size} pixels are masked (non-finite flux/error or flagged)",
+            file=source,
+            column=names["flux"],
+        )
+    return Spectrum(
+        wave=_readonly(wave, float),
+        flux=_readonly(flux, float),
+        err=_readonly(err, float),
+        mask=_readonly(mask, bool),
+        name=name,
+        source=None if source is None else str(source),
+    )
 
 
 def _resolve_medium(air, medium, path):
     if air is None:
         return medium == "air"
     if medium is not None and bool(air) != (medium == "air"):
-        raise DataError(f"air={air} contradicts the file, which says its wavelengths are in "
-                        f"{medium}", file=path, column="medium", value=medium)
+        raise DataError(
+            f"air={air} contradicts the file, which says its wavelengths are in {medium}",
+            file=path,
+            column="medium",
+            value=medium,
+        )
     return bool(air)
 
 
@@ -163,8 +194,11 @@ def read_spectrum(path, *, air=None, wave_unit=None, flux_unit=None, columns=Non
     e_unit = raw["err_unit"] if (raw["err_unit"] is not None and flux_unit is None) else f_unit
     for role, unit in (("wave", w_unit), ("flux", f_unit)):
         if unit is None:
-            raise DataError(f"no unit for the {role} column; give {role}_unit=...",
-                            file=path, column=names[role])
+            raise DataError(
+                f"no unit for the {role} column; give {role}_unit=...",
+                file=path,
+                column=names[role],
+            )
     wave = wave_to_A(raw["wave"], w_unit, file=path, column=names["wave"])
     if _resolve_medium(air, raw["medium"], path):
         wave = air_to_vacuum(wave)
@@ -230,10 +264,18 @@ def apply_masks(spectrum, ranges=(), telluric=True):
     mask = np.array(spectrum.mask)
     for lo, hi in cut:
         if not hi > lo:
-            raise DataError(f"mask range should have hi > lo but got ({lo}, {hi})",
-                            file=spectrum.source, column="mask", value=(lo, hi))
+            raise DataError(
+                f"mask range should have hi > lo but got ({lo}, {hi})",
+                file=spectrum.source,
+                column="mask",
+                value=(lo, hi),
+            )
         mask &= ~((spectrum.wave >= lo) & (spectrum.wave <= hi))
     if not mask.any():
-        raise DataError("every pixel is masked after applying the mask ranges",
-                        file=spectrum.source, column="mask", value=cut)
+        raise DataError(
+            "every pixel is masked after applying the mask ranges",
+            file=spectrum.source,
+            column="mask",
+            value=cut,
+        )
     return replace(spectrum, mask=_readonly(mask, bool))
