@@ -252,3 +252,26 @@ def test_from_specutils_matches_file(tmp_path, arrays):
     np.testing.assert_allclose(spec.wave, wave, rtol=1e-14)
     np.testing.assert_allclose(spec.flux, flux, rtol=1e-12)
     np.testing.assert_allclose(spec.err, err, rtol=1e-12)
+
+
+def test_medium_comment_in_text_file(tmp_path):
+    (tmp_path / "s.csv").write_text("# medium: air\n" + HEADER + "650,1,0.1\n651,1,0.1\n")
+    spec = read_spectrum(tmp_path / "s.csv")
+    np.testing.assert_allclose(spec.wave, air_to_vacuum([6500.0, 6510.0]), rtol=1e-14)
+    assert read_spectrum(tmp_path / "s.csv", air=True).wave[0] == spec.wave[0]
+    (tmp_path / "t.csv").write_text("# medium: water\n" + HEADER + "650,1,0.1\n")
+    with pytest.raises(DataError, match="'air' or 'vacuum'"):
+        read_spectrum(tmp_path / "t.csv")
+
+
+def test_from_specutils_mask_is_inverted():
+    specutils = pytest.importorskip("specutils")
+    from astropy.nddata import StdDevUncertainty
+
+    obj = specutils.Spectrum(
+        flux=np.ones(4) * u.Jy,
+        spectral_axis=np.array([500.0, 501.0, 502.0, 503.0]) * u.nm,
+        uncertainty=StdDevUncertainty(np.full(4, 0.1)),
+        mask=np.array([False, True, False, False]),
+    )
+    np.testing.assert_array_equal(from_specutils(obj).mask, [True, False, True, True])
