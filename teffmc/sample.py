@@ -243,9 +243,11 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
                                     moves=default_moves() if moves is None else moves,
                                     backend=backend)
     n = n_saved = backend.iteration if saved is not None else 0
-    taus = {0: np.full(ndim, np.nan)}
+    taus = {}
 
-    def tau_at(m):
+    def tau_at(m):  # tau from the first m steps; nan when there are too few
+        if m < 2:
+            return np.full(ndim, np.nan)
         if m not in taus:
             taus[m] = autocorr_time(sampler.get_chain()[:m])
         return taus[m]

@@ -84,8 +84,9 @@ def stop_rule(n, tau, tau_prev, *, names, min_steps, tau_factor, tau_rtol, prev_
         return False, f"{n} steps: parameter(s) {', '.join(stuck)} never moved"
     k = int(np.argmax(tau))
     long_enough = n > tau_factor * tau[k]
-    change = np.abs(tau - tau_prev) / tau if prev_step > 0 else np.full(tau.shape, np.inf)
-    dmax = float(np.max(change))
+    with np.errstate(invalid="ignore", divide="ignore"):  # tau 0 from a 2-step chain
+        change = np.abs(tau - tau_prev) / tau if prev_step > 0 else np.full(tau.shape, np.inf)
+    dmax = float(np.max(np.where(np.isnan(change), np.inf, change)))
     dtxt = f"{dmax:.1%}" if np.isfinite(dmax) else "unknown"
     text = (f"{n} steps, {tau_factor:g} x max tau = {tau_factor * tau[k]:.0f} "
             f"(tau {tau[k]:.1f} for {names[k]}), tau changed by {dtxt} "

@@ -126,3 +126,12 @@ def test_bad_arguments_raise_config_error(target, change, key):
 def test_bad_start_shape_raises_config_error(target):
     with pytest.raises(ConfigError, match=r"^x0: should have shape \(2,\) or \(16, 2\)"):
         run_sampler(target.log_prob, np.zeros(3), names=target.names, **FAST)
+
+
+def test_check_every_step_works(target):
+    """The smallest cadence: a tau estimate from one step must not break the rule."""
+    kw = {**FAST, "check_every": 1}
+    with pytest.warns(ConvergenceWarning):
+        res = run_sampler(target.log_prob, target.mean, names=target.names, max_steps=30,
+                          **kw)
+    assert res.n_steps == 30

@@ -61,6 +61,7 @@ RULE = {"names": ["teff", "a_v"], "min_steps": 1000, "tau_factor": 50.0, "tau_rt
         (6000, [100.0, 50.0], [np.nan, np.nan], 0, False),  # no earlier estimate
         (900, [10.0, 5.0], [10.0, 5.0], 800, False),  # before min_steps
         (6000, [100.0, np.nan], [100.0, 50.0], 5500, False),  # a frozen parameter
+        (6000, [0.0, 0.0], [0.0, 0.0], 5500, False),  # degenerate 2-step estimate, no 0/0 warning
     ],
 )
 def test_stop_rule_cases(n, tau, tau_prev, prev_step, converged):
