@@ -6,6 +6,7 @@ from scipy import integrate, stats
 
 from teffmc.errors import ConfigError
 from teffmc.observe import (
+    calibration_mean,
     legendre_design,
     marginal_loglike,
     posterior_calibration,
@@ -114,3 +115,17 @@ def test_bad_prior_and_nu(problem):
         marginal_loglike(data, var, model, legendre_design(wave, 1), [0.1, 0.0])
     with pytest.raises(ConfigError, match="student_nu"):
         student_t_loglike(data, var, model, -1.0)
+
+
+def test_design_transpose_and_calibration_mean(problem):
+    wave, data, var, model = problem
+    design, sigma = legendre_design(wave, 2), np.array([0.1, 0.05, 0.02])
+    np.testing.assert_allclose(
+        marginal_loglike(data, var, model, design.T, sigma),
+        marginal_loglike(data, var, model, design, sigma),
+        rtol=1e-14,
+    )
+    post = posterior_calibration(data, var, model, design, sigma)
+    np.testing.assert_allclose(
+        calibration_mean(data, var, model, design.T, sigma), post.mean @ design.T, atol=1e-15
+    )

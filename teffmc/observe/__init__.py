@@ -7,6 +7,7 @@ from teffmc.observe.airvac import air_to_vacuum, refractive_index_air, vacuum_to
 from teffmc.observe.bandset import AB_FNU0, VEGA_MAG, BandSet, synth_mag
 from teffmc.observe.calibration import (
     CalibrationPosterior,
+    calibration_mean,
     legendre_design,
     marginal_loglike,
     posterior_calibration,
@@ -36,6 +37,7 @@ __all__ = [
     "air_to_vacuum",
     "apply_lsf",
     "apply_masks",
+    "calibration_mean",
     "convolve_resample",
     "from_specutils",
     "get_filter",

@@ -39,6 +39,7 @@ from teffmc.errors import ConfigError, DataError
 
 __all__ = [
     "CalibrationPosterior",
+    "calibration_mean",
     "legendre_design",
     "marginal_loglike",
     "posterior_calibration",
@@ -80,11 +81,19 @@ def _prior_var(prior_sigma, k):
     return sig**2
 
 
+def _design(design, n_pix):
+    """The design as (n_pix, K); a (K, n_pix) array is accepted and transposed."""
+    A = np.asarray(design, dtype=float)
+    if A.ndim == 2 and A.shape[0] != n_pix and A.shape[1] == n_pix:
+        A = A.T
+    return A
+
+
 def _normal_equations(data, var, model, design, prior_sigma):
     d = np.asarray(data, dtype=float)
     m = np.asarray(model, dtype=float)
     s2 = np.asarray(var, dtype=float)
-    A = np.asarray(design, dtype=float)
+    A = _design(design, d.shape[-1])
     n, k = A.shape
     for label, arr in (("data", d), ("var", s2), ("model", m)):
         if arr.shape[-1] != n:
@@ -119,7 +128,8 @@ def marginal_loglike(data, var, model, design, prior_sigma):
     model : array_like, shape (n_walkers, n_pix) or (n_pix,)
         Model flux of each walker.
     design : array_like, shape (n_pix, K)
-        From :func:`legendre_design`.
+        From :func:`legendre_design` (the transpose, (K, n_pix), is also
+        accepted when n_pix != K).
     prior_sigma : float or array_like of shape (K,)
         Prior standard deviation of each coefficient [dimensionless], > 0.
 
@@ -159,6 +169,19 @@ def posterior_calibration(data, var, model, design, prior_sigma):
     cov = np.linalg.inv(M)
     mean = np.einsum("...kl,...l->...k", cov, b)
     return CalibrationPosterior(mean, cov, 1.0 + mean @ A.T)
+
+
+def calibration_mean(data, var, model, design, prior_sigma):
+    """Posterior mean of the calibration polynomial minus one, sum_k c_k P_k(x).
+
+    Same parameters as :func:`marginal_loglike`; the calibrated model is
+    ``model * (1 + calibration_mean(...))``.
+
+    Returns
+    -------
+    ndarray, shape (n_walkers, n_pix)
+    """
+    return posterior_calibration(data, var, model, design, prior_sigma).poly - 1.0
 
 
 def student_t_loglike(data, var, model, nu):
