@@ -59,12 +59,12 @@ _H2O = ((1595.0, 1.0e-17, 250.0), (3700.0, 1.3e-17, 300.0), (5330.0, 8.0e-19, 30
 _CO = ((2200.0, 1.0e-17, 60.0), (4360.0, 8.0e-20, 90.0), (6418.0, 6.0e-22, 110.0))
 _CO_HOT = 52.0                    # head shift per hot band (3-1, 4-2, ...) [cm^-1], approx.
 # Atomic line haze per Fe atom (proxy for all metal lines): sigma(lambda) =
-# s exp(-(lambda - l0)/L) [cm^2], capped at its 1500 A value. Not a published fit: the
+# sum of s exp(-(lambda - l0)/L) [cm^2], capped at its 1500 A value. Not a published fit: the
 # neutral amplitude is calibrated on the solar U-B / B-V colours (our choice, see
 # tests/test_synth_colours.py); the ionised form is our rough guess (Fe II lines lie
 # further in the UV).
-HAZE_I = (3.0e-19, 4000.0, 900.0)
-HAZE_II = (2.0e-20, 3000.0, 600.0)
+HAZE_I = ((1.1e-19, 4000.0, 2200.0), (5.0e-19, 3800.0, 350.0))
+HAZE_II = ((2.0e-20, 3000.0, 600.0),)
 
 
 def _red_degraded(nu, head, width):
@@ -98,8 +98,8 @@ def band_basis(wave):
                         for head, s, wid in _CO))
         names.append(f"CO v''={v2}")
     lam = np.maximum(np.asarray(wave, float), 1500.0)
-    for s, l0, L in (HAZE_I, HAZE_II):
-        rows.append(s * np.exp(-(lam - l0) / L))
+    for comps in (HAZE_I, HAZE_II):
+        rows.append(sum(s * np.exp(-(lam - l0) / L) for s, l0, L in comps))
     names += ["haze I", "haze II"]
     return np.array(rows), names
 

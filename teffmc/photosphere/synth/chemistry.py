@@ -158,7 +158,7 @@ def _first_guess(T, P, abund, lk):
         pti = abund["Ti"] * hn / (1 + lk["phi_Ti"] / pe + po / ktio)
         po = 0.5 * po + 0.5 * abund["O"] * hn / (1 + lk["phi_O"] / pe + pc / kco + ph / koh
                                                    + ph**2 / kh2o + pti / ktio)
-    return np.log(np.array([ph, pc, po, pti, pe]))
+    return np.log(np.maximum(np.array([ph, pc, po, pti, pe]), 1e-300))
 
 
 def equilibrium(T, P, mh=0.0, u0=None, tol=1e-9, maxiter=80):
@@ -167,6 +167,11 @@ def equilibrium(T, P, mh=0.0, u0=None, tol=1e-9, maxiter=80):
     Returns (species dict of partial pressures, u) where u can warm-start the next call.
     Metals (everything but H and He) are scaled by 10**mh.
     """
+    with np.errstate(all="ignore"):     # underflow of trace species is harmless
+        return _equilibrium(T, P, mh, u0, tol, maxiter)
+
+
+def _equilibrium(T, P, mh, u0, tol, maxiter):
     T = np.atleast_1d(np.asarray(T, float))
     P = np.broadcast_to(np.asarray(P, float), T.shape).copy()
     abund = {el: ABUND[el] * (1.0 if el in ("H", "He") else 10.0 ** mh) for el in ABUND}

@@ -1,0 +1,19 @@
+"""``python -m teffmc.photosphere.synth --out FILE [--workers N]``: build the grid."""
+
+import argparse
+
+from .build import build_grid
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(prog="python -m teffmc.photosphere.synth",
+                                 description="Compute teffmc's built-in photosphere grid.")
+    ap.add_argument("--out", required=True, help="output HDF5 file")
+    ap.add_argument("--workers", type=int, default=2)
+    a = ap.parse_args(argv)
+    g = build_grid(a.out, workers=a.workers, progress=True)
+    print(f"checksum sha256:{g.checksum}")
+
+
+if __name__ == "__main__":
+    main()
