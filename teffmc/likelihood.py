@@ -94,5 +94,5 @@ class Posterior:
         for label, chans in self.channels.items():
             p = self._epoch_params(x, label)
             for ch in chans:
-                out[f"{label}/{ch.name}"] = self.channel_loglike(ch, p, pointwise=True)
+                out[f"{label}.{ch.name}"] = self.channel_loglike(ch, p, pointwise=True)
         return out

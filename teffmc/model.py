@@ -19,7 +19,8 @@ import numpy as np
 
 from .dust import ExtinctionTable, Veil
 
-__all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "SpectrumChannel", "PhotometryChannel"]
+__all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "observed_flux", "band_pixels", "SpectrumChannel",
+           "PhotometryChannel"]
 
 MAS_TO_RAD = np.pi / (180.0 * 3600.0 * 1000.0)
 
@@ -120,6 +121,25 @@ class SpectrumChannel:
         return observed_flux(self.grid, self.dust, p)
 
 
+def band_pixels(grid_wave, bands, source=None):
+    """The grid's own pixels spanning the given filters (one pixel margin each side).
+
+    Raises DataError when the grid does not cover a filter.
+    """
+    from .errors import DataError
+    from .observe.filters import get_filter
+
+    spans = [get_filter(b).wave_range for b in bands]
+    lo, hi = min(s[0] for s in spans), max(s[1] for s in spans)
+    if lo < grid_wave[0] or hi > grid_wave[-1]:
+        raise DataError(f"the photosphere grid covers {grid_wave[0]:.0f}-{grid_wave[-1]:.0f} "
+                        f"Angstrom but the bands need {lo:.0f}-{hi:.0f} Angstrom",
+                        file=source, column="band", value=(lo, hi))
+    i0 = max(np.searchsorted(grid_wave, lo) - 1, 0)
+    i1 = min(np.searchsorted(grid_wave, hi) + 1, grid_wave.size - 1)
+    return grid_wave[i0:i1 + 1]
+
+
 class PhotometryChannel:
     """Broad-band photometry with precomputed filter weight matrices.
 
@@ -130,21 +150,13 @@ class PhotometryChannel:
     kind = "photometry"
 
     def __init__(self, photometry, grid, model, r_v_prior, name="photometry"):
-        from .observe import BandSet
-
         self.name = name
         self.bands = list(photometry.bands)
-        self.data = np.asarray(photometry.mags, float)
-        self.err = np.sqrt(np.asarray(photometry.errors, float) ** 2
-                           + np.asarray(photometry.floors, float) ** 2)
-        lo, hi = BandSet.wavelength_span(self.bands)
-        gw = grid.wave
-        sel = (gw >= lo) & (gw <= hi)
-        i0, i1 = max(np.argmax(sel) - 1, 0), min(len(gw) - np.argmax(sel[::-1]) + 1, len(gw))
-        self.wave = gw[i0:i1]
+        self.data = np.asarray(photometry.mag, float)
+        self.err = np.asarray(photometry.total_err, float)
+        self.wave = band_pixels(grid.wave, self.bands, source=photometry.source)
         self.grid = grid.on_pixels(self.wave)
-        self.bandset = BandSet(self.bands, list(photometry.systems), self.wave,
-                               source=str(photometry.source))
+        self.bandset = photometry.bandset(self.wave)
         self.dust = Dust(self.wave, model, r_v_prior)
 
     @property

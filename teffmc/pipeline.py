@@ -11,7 +11,7 @@ from . import __version__
 from . import posterior as post_mod
 from .budget import dimming_budget
 from .derived import bolometric
-from .model import Dust, observed_flux
+from .model import Dust, band_pixels, observed_flux
 from .report import corner_figure, fit_figure, write_summary
 from .tomlout import dumps_toml
 
@@ -45,9 +45,7 @@ class VBand:
     def __init__(self, grid, model, r_v_prior):
         from .observe import BandSet
 
-        lo, hi = BandSet.wavelength_span(["bessell-V"])
-        sel = np.flatnonzero((grid.wave >= lo) & (grid.wave <= hi))
-        wave = grid.wave[max(sel[0] - 1, 0): sel[-1] + 2]
+        wave = band_pixels(grid.wave, ["bessell-V"])
         self.grid = grid.on_pixels(wave)
         self.dust = Dust(wave, model, r_v_prior)
         self.bands = BandSet(["bessell-V"], ["vega"], wave)
@@ -112,14 +110,14 @@ def _panels(prep, predictive):
     panels = []
     for label, chans in prep.channels.items():
         for ch in chans:
-            key = f"{label}/{ch.name}"
+            key = f"{label}.{ch.name}"
             draws = predictive[key].reshape(-1, ch.n_points)
             pan = {"kind": ch.kind, "label": f"epoch {label}: {ch.name}", "data": ch.data,
                    "err": ch.err, "draws": draws}
             if ch.kind == "spectrum":
                 pan["x"] = ch.wave
             else:
-                pan["x"], pan["bands"] = ch.bandset.effective_wavelengths, ch.bands
+                pan["x"], pan["bands"] = ch.bandset.pivot, ch.bands
             panels.append(pan)
     return panels
 
@@ -138,7 +136,7 @@ def _predict(prep, x):
                 m = m * (1.0 + calibration_mean(ch.data, var, m, ch.basis,
                                                 np.full(ch.basis.shape[0],
                                                         ch.calibration_sigma)))
-            out[f"{label}/{ch.name}"] = m
+            out[f"{label}.{ch.name}"] = m
     return out
 
 
@@ -157,7 +155,7 @@ def finish_run(prep, result, folder, *, log):
     sub = result.chain[-min(n_draws, 4):]
     predictive = {k: v.reshape(sub.shape[0], n_walkers, -1)
                   for k, v in _predict(prep, sub.reshape(-1, ndim)).items()}
-    observed = {f"{label}/{ch.name}": ch.data
+    observed = {f"{label}.{ch.name}": ch.data
                 for label, chans in prep.channels.items() for ch in chans}
     grid_checksum = prep.grid.checksum
     record = {

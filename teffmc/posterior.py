@@ -57,9 +57,11 @@ def build(result, *, derived, pointwise, observed, predictive, attrs, constant=N
         data["constant_data"] = {n: np.asarray(v) for n, v in constant.items()}
         for n in constant:
             dims[n] = [f"{n.rsplit('__', 1)[0]}_point"]
-    dt = az.from_dict(data, dims=dims)
-    dt["sample_stats"].ds["acceptance_fraction"] = ("chain", np.asarray(
-        result.acceptance_fraction))
+    # walkers are the "chain" dimension, so chain may be longer than draw: not an error
+    dt = az.from_dict(data, dims=dims, check_conventions=False)
+    stats = dt["sample_stats"].to_dataset()
+    stats["acceptance_fraction"] = ("chain", np.asarray(result.acceptance_fraction))
+    dt["sample_stats"] = stats
     for k, v in attrs.items():
         dt.attrs[k] = v if isinstance(v, (str, int, float)) else json.dumps(v)
     dt.attrs["sampled_names"] = json.dumps(list(result.names))
@@ -88,17 +90,23 @@ def summarise(dt, names):
     import arviz as az
 
     post = dt["posterior"].ds[list(names)]
-    rhat = az.rhat(post)
-    ess_b = az.ess(post, method="bulk")
-    ess_t = az.ess(post, method="tail")
+    # constant quantities (e.g. a derived value from fixed inputs) have no R-hat or ESS
+    varying = [n for n in names if np.ptp(post[n].values) > 0]
+    diag = {}
+    if varying:
+        sub = post[varying]
+        diag = {"r_hat": az.rhat(sub), "ess_bulk": az.ess(sub, method="bulk"),
+                "ess_tail": az.ess(sub, method="tail")}
     out = {}
     for n in names:
         x = post[n].values.ravel()
         p16, p50, p84 = np.percentile(x, [16, 50, 84])
         out[n] = {"median": float(p50), "p16": float(p16), "p84": float(p84),
-                  "mean": float(x.mean()), "sd": float(x.std(ddof=1)),
-                  "r_hat": float(rhat[n].values), "ess_bulk": float(ess_b[n].values),
-                  "ess_tail": float(ess_t[n].values)}
+                  "mean": float(x.mean()), "sd": float(x.std(ddof=1))}
+        for k, v in diag.items():
+            out[n][k] = float(v[n].values) if n in varying else float("nan")
+        if not diag:
+            out[n].update(r_hat=float("nan"), ess_bulk=float("nan"), ess_tail=float("nan"))
     return out
 
 
@@ -110,7 +118,7 @@ def _joint_loglik(dt):
     parts = [ll[v].values.reshape(ll[v].shape[0], ll[v].shape[1], -1) for v in ll.data_vars]
     joint = np.concatenate(parts, axis=-1)
     return az.from_dict({"posterior": {"_": joint[..., 0]}, "log_likelihood": {"all": joint}},
-                        dims={"all": ["point"]})
+                        dims={"all": ["point"]}, check_conventions=False)
 
 
 def loo(dt):

@@ -49,7 +49,7 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
     from astropy import units as u
     from astropy.table import Table
 
-    from .model import Dust, observed_flux, surface_flux  # noqa: F401
+    from .model import Dust, band_pixels, observed_flux
     from .observe import BandSet
     from .priors import Prior
 
@@ -75,9 +75,7 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
     spec_path = folder / f"{stem}_spec.ecsv"
     spec.write(spec_path, format="ascii.ecsv", overwrite=True)
 
-    lo, hi = BandSet.wavelength_span(bands)
-    sel = np.flatnonzero((grid.wave >= lo) & (grid.wave <= hi))
-    pw = grid.wave[max(sel[0] - 1, 0): sel[-1] + 2]
+    pw = band_pixels(grid.wave, bands)
     bs = BandSet(list(bands), ["vega"] * len(bands), pw)
     mags = bs.mags(observed_flux(grid.on_pixels(pw), Dust(pw, model, rv), p))[0]
     merr = np.broadcast_to(np.asarray(mag_err, float), mags.shape)

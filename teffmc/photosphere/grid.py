@@ -208,6 +208,17 @@ class Grid:
             raise GridError(
                 f"grid {self.name!r} covers {self.wave[0]:.1f}-{self.wave[-1]:.1f} Angstrom "
                 f"but the data need {wave[0]:.1f}-{wave[-1]:.1f} Angstrom")
+        if resolution is None and fwhm_A is None:
+            # no line-spread function: slice when the pixels are the grid's own,
+            # else interpolate log flux linearly in wavelength
+            i = np.searchsorted(self.wave, wave)
+            if np.array_equal(self.wave[np.minimum(i, self.wave.size - 1)], wave):
+                log_res = self.log_flux[..., i]
+            else:
+                j = np.clip(i - 1, 0, self.wave.size - 2)
+                w = (wave - self.wave[j]) / (self.wave[j + 1] - self.wave[j])
+                log_res = (1 - w) * self.log_flux[..., j] + w * self.log_flux[..., j + 1]
+            return Grid(self.teff, self.logg, self.mh, wave, log_res, self.provenance, self.name)
         flux = np.where(self._present[..., None], 10.0 ** self.log_flux.astype(float), 1.0)
         res = convolve_resample(self.wave, flux, wave, resolution=resolution, fwhm_A=fwhm_A)
         log_res = np.where(self._present[..., None], np.log10(res), np.nan)
