@@ -144,7 +144,8 @@ class MieTable:
     With ``spread_dex`` = 0 the fine x grid (step 0.05 above x = 43) follows the
     broad interference structure but not the narrowest resonance ripples of
     weakly absorbing grains at large x; use a spread for such grains. The radius
-    axis is interpolated linearly in ln a, so single-size tables with ripples
+    axis is interpolated linearly in ln a -- ln Q_ext and ln Q_sca (exact for the
+    power laws of small grains), g itself -- so single-size tables with ripples
     need a dense ``n_radius``.
     """
 
@@ -171,6 +172,9 @@ class MieTable:
             if use_cache:
                 cache.save("mie", key, data)
         self.table_q_ext, self.table_q_sca, self.table_g = data["q_ext"], data["q_sca"], data["g"]
+        tiny = np.finfo(float).tiny
+        self._ln_q_ext = np.log(np.maximum(self.table_q_ext, tiny))
+        self._ln_q_sca = np.log(np.maximum(self.table_q_sca, tiny))
 
     def _compute(self):
         spread = self.spread_dex > 0
@@ -204,11 +208,11 @@ class MieTable:
 
     def q_ext(self, radius):
         """Extinction efficiency, shape (n, n_pix), for radii [micron] of shape (n,)."""
-        return self._lookup(self.table_q_ext, radius)
+        return np.exp(self._lookup(self._ln_q_ext, radius))
 
     def q_sca(self, radius):
         """Scattering efficiency, shape (n, n_pix), for radii [micron] of shape (n,)."""
-        return self._lookup(self.table_q_sca, radius)
+        return np.exp(self._lookup(self._ln_q_sca, radius))
 
     def albedo(self, radius):
         """Single-scattering albedo Q_sca / Q_ext, shape (n, n_pix)."""
