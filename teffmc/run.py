@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from . import __version__
 from .config import load_config
@@ -154,7 +155,11 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=()):
     log(f"teffmc {__version__}: fitting {cfg.path} with {prep.space.ndim} free parameters: "
         f"{', '.join(prep.space.names)}")
     try:
-        result = sample_posterior(prep, partial / "chain.h5", resume=resume, quiet=quiet, log=log)
+        # One BLAS thread: the batches are small, and threads fight over 2 cores
+        # (measured 3x slower per call on a loaded 2-core machine, bench/bench_model.py).
+        with threadpool_limits(limits=1):
+            result = sample_posterior(prep, partial / "chain.h5", resume=resume, quiet=quiet,
+                                      log=log)
         dt, summary = finish_run(prep, result, partial, log=log)
     except BaseException:
         # keep the checkpoint for --resume; the folder is clearly marked partial

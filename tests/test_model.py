@@ -1,0 +1,68 @@
+"""Forward-model pieces: photometry pixels, dust factor wiring, patches."""
+
+import numpy as np
+import pytest
+
+from teffmc.config import ModelSpec
+from teffmc.model import PhotometryChannel, observed_flux, surface_flux
+from teffmc.observe import synth_mag
+from teffmc.observe.photometry import make_photometry
+from teffmc.photosphere import BlackbodyGrid, Grid
+from teffmc.priors import Prior
+
+BANDS = ["bessell-B", "bessell-V", "bessell-I", "twomass-J", "twomass-Ks"]
+
+
+def _lined_grid(rng):
+    """A grid with dense random absorption lines at lambda/dlambda = 3000 (test numbers)."""
+    wave = np.exp(np.arange(np.log(3000.0), np.log(30000.0), 1 / 3000.0))
+    bb = BlackbodyGrid(wave)
+    teff = np.array([3500.0, 3700.0])
+    lf = np.empty((2, 1, 1, wave.size))
+    centres = rng.uniform(3000, 30000, 4000)
+    depth = np.zeros(wave.size)
+    for c in centres:
+        depth += 0.5 * np.exp(-0.5 * ((wave - c) / (c / 4000)) ** 2)
+    for i, t in enumerate(teff):
+        lf[i, 0, 0] = np.log10(bb.interpolate(t, 0.0, 0.0)[0] * np.exp(-depth))
+    return Grid(teff, [0.0], [0.0], wave, lf, name="lined test grid")
+
+
+def test_coarse_photometry_pixels_match_native_synthetic_mags(rng):
+    # The photometry channel smooths the grid to R=500 on R=1000 pixels; synthetic
+    # magnitudes must stay within 1e-3 mag of the native-resolution integral
+    # (tolerance: common practice, no source — well below photometric errors).
+    grid = _lined_grid(rng)
+    phot = make_photometry(BANDS, np.zeros(5), np.full(5, 0.02), ["vega"] * 5)
+    ch = PhotometryChannel(phot, grid, ModelSpec(), Prior("fixed", value=3.1))
+    assert ch.wave.size < grid.wave.size / 2
+    p = {"teff": np.array([3600.0]), "logg": np.zeros(1), "mh": np.zeros(1),
+         "theta": np.array([10.0]), "a_v": np.array([0.7]), "r_v": np.array([3.1])}
+    got = ch.predict(p)[0]
+    from teffmc.model import Dust
+
+    native = observed_flux(grid, Dust(grid.wave, ModelSpec(), Prior("fixed", value=3.1)), p)[0]
+    want = [synth_mag(grid.wave, native, b, "vega") for b in BANDS]
+    np.testing.assert_allclose(got, want, atol=1e-3)
+
+
+def test_cool_patches_mix_two_temperatures():
+    grid = BlackbodyGrid(np.geomspace(4000, 9000, 50))
+    p = {"teff": np.array([3600.0]), "logg": np.zeros(1), "mh": np.zeros(1),
+         "patch_cover": np.array([0.3]), "patch_dteff": np.array([400.0])}
+    f = surface_flux(grid, p)[0]
+    want = 0.7 * grid.interpolate(3600.0, 0, 0)[0] + 0.3 * grid.interpolate(3200.0, 0, 0)[0]
+    np.testing.assert_allclose(f, want, rtol=1e-12)
+
+
+def test_angular_diameter_scaling():
+    # F_obs = (theta/2)^2 F_surf (definition of the angular diameter; 1 mas = pi/648e6 rad)
+    from teffmc.model import Dust
+
+    grid = BlackbodyGrid(np.geomspace(4000, 9000, 20))
+    p = {"teff": np.array([5000.0]), "logg": np.zeros(1), "mh": np.zeros(1),
+         "theta": np.array([2.0]), "a_v": np.zeros(1), "r_v": np.array([3.1])}
+    f = observed_flux(grid, Dust(grid.wave, ModelSpec(), Prior("fixed", value=3.1)), p)[0]
+    half = 1.0 * np.pi / 648e6
+    np.testing.assert_allclose(f, half**2 * grid.interpolate(5000.0, 0, 0)[0], rtol=1e-12)
+    assert pytest.approx(np.pi / 648e6) == np.deg2rad(1 / 3.6e6)
