@@ -14,9 +14,12 @@ Conference on Stellar Atmospheres", SAO Special Report 167, p. 93; from memory):
 
 with Planck, absorption and flux means k_P, k_J, k_H per gram and column mass m.
 Line opacity is represented by a three-step opacity distribution (picket fence) inside
-each pixel: sub-channels with weights W_ODF see the smeared line opacity multiplied by
-M_ODF (sum W*M = 1, so the mean opacity is the smeared one); the flux is the weighted
-mean of the channels. The weights are our choice (idea of opacity distribution
+each pixel: sub-channels with weights W_ODF see the smeared molecular opacity multiplied
+by M_ODF and the atomic haze multiplied by H_ODF (sum W*M = sum W*H = 1, so the mean
+opacity is the smeared one; the haze is spread more widely than the molecular bands, as
+atomic lines leave gaps); the flux is the weighted mean of the channels. The multipliers
+were chosen together with the haze amplitudes (solar colours) and checked against the
+TiO band-depth and V-sensitivity acceptance tests. The weights are our choice (idea of opacity distribution
 functions: e.g. Mihalas 1978 ch. 7 on line blanketing, from memory).
 """
 
@@ -32,10 +35,11 @@ from .opacity import Opacity
 from .radiation import emergent_flux, moments, planck
 
 __all__ = ["Atmosphere", "model_atmosphere", "wave_fine", "wave_work", "wave_full",
-           "W_ODF", "M_ODF"]
+           "W_ODF", "M_ODF", "H_ODF"]
 
 W_ODF = np.array([0.3, 0.4, 0.3])
-M_ODF = np.array([0.05, 0.5, (1.0 - 0.3 * 0.05 - 0.4 * 0.5) / 0.3])
+M_ODF = np.array([0.3, 0.8, (1.0 - 0.3 * 0.3 - 0.4 * 0.8) / 0.3])     # molecular bands
+H_ODF = np.array([0.2, 0.6, (1.0 - 0.3 * 0.2 - 0.4 * 0.6) / 0.3])     # atomic haze
 LOGTAU = np.linspace(-6.0, 1.5, 51)
 R_FINE = 2000.0
 
@@ -91,8 +95,8 @@ def _state(T, P, mh, u0=None):
 
 def _channels(op, T, sp, rho, mh):
     kc = op.continuum(T, sp, rho)
-    kl = op.lines(T, sp, rho, mh)
-    return [kc + m * kl for m in M_ODF]
+    kmol, khaze = op.lines(T, sp, rho, mh)
+    return [kc + m * kmol + h * khaze for m, h in zip(M_ODF, H_ODF)]
 
 
 def _trapz(y, x):

@@ -21,8 +21,10 @@ __all__ = ["band_basis", "band_weights", "TIO_SYSTEMS"]
 
 _C2 = HC_K * 1e-8                 # hc/k [cm K]
 _PI_E2_MC2 = 8.853e-13            # pi e^2/(m_e c^2) [cm] (= pi r_e, CODATA 2018 r_e)
-_W_ROT = 120.0                    # rotational spread of a TiO band [cm^-1] ~ (1-B'/B'')kT/hc
-                                  # at 3000 K (estimate, common practice, no source)
+# Rotational spread of a TiO band [cm^-1]: P-branch lines sit at
+# nu0 - (B'+B'')J - (B''-B')J^2; with <J^2> ~ kT/(hcB) at ~3000 K, B ~ 0.53 cm^-1 and
+# B''-B' ~ 0.03 cm^-1 the mean offset is ~170-200 cm^-1 (our estimate, no source).
+_W_ROT = 200.0
 # Franck-Condon-like sequence strengths q(Delta v) (rough guess, sum ~1, from memory of
 # the pattern that Delta v = 0 dominates TiO systems; not measured values)
 _FC = {0: 0.55, 1: 0.18, -1: 0.18, 2: 0.045, -2: 0.045}
@@ -58,13 +60,16 @@ _H2O = ((1595.0, 1.0e-17, 250.0), (3700.0, 1.3e-17, 300.0), (5330.0, 8.0e-19, 30
 # cm^-1) S ~8e-20; second overtone head ~1.558 um (6418 cm^-1) S ~6e-22 (from memory).
 _CO = ((2200.0, 1.0e-17, 60.0), (4360.0, 8.0e-20, 90.0), (6418.0, 6.0e-22, 110.0))
 _CO_HOT = 52.0                    # head shift per hot band (3-1, 4-2, ...) [cm^-1], approx.
-# Atomic line haze per Fe atom (proxy for all metal lines): sigma(lambda) =
-# sum of s exp(-(lambda - l0)/L) [cm^2], capped at its 1500 A value. Not a published fit: the
-# neutral amplitude is calibrated on the solar U-B / B-V colours (our choice, see
-# tests/test_synth_colours.py); the ionised form is our rough guess (Fe II lines lie
+# Atomic line haze per Fe atom (proxy for all metal lines): components
+# (s [cm^2], l0 [A], L [A], chi [eV]) giving s exp(-(lambda - l0)/L) 10^(-chi (theta - 1))
+# with theta = 5040/T: chi is a typical lower-level excitation energy of the lines
+# (Boltzmann factor, e.g. Gray 2005 eq. 1.18), so high-excitation visible lines fade in cool
+# gas while low-excitation UV lines stay. Capped at the 1500 A value. Not a published fit:
+# amplitudes and shapes are calibrated on the solar U-B, B-V, V-Ks colours (our choice, see
+# tests/test_synth_colours.py); the Fe II component is a rough guess (its lines lie
 # further in the UV).
-HAZE_I = ((1.1e-19, 4000.0, 2200.0), (5.0e-19, 3800.0, 350.0))
-HAZE_II = ((2.0e-20, 3000.0, 600.0),)
+HAZE_I = ((1.0e-19, 4000.0, 2200.0, 2.0), (2.0e-19, 3800.0, 400.0, 0.5))
+HAZE_II = ((2.0e-20, 3000.0, 600.0, 0.5),)
 
 
 def _red_degraded(nu, head, width):
@@ -98,9 +103,10 @@ def band_basis(wave):
                         for head, s, wid in _CO))
         names.append(f"CO v''={v2}")
     lam = np.maximum(np.asarray(wave, float), 1500.0)
-    for comps in (HAZE_I, HAZE_II):
-        rows.append(sum(s * np.exp(-(lam - l0) / L) for s, l0, L in comps))
-    names += ["haze I", "haze II"]
+    for tag, comps in (("I", HAZE_I), ("II", HAZE_II)):
+        for s, l0, L, _chi in comps:
+            rows.append(s * np.exp(-(lam - l0) / L))
+            names.append(f"haze {tag} chi={_chi:g}")
     return np.array(rows), names
 
 
@@ -122,6 +128,8 @@ def band_weights(T, sp, mh):
     x = np.exp(-_C2 * 2143.0 / T)            # CO vibrational populations (w = 2170 approx)
     for v2 in range(3):
         cols.append(sp["CO"] / kT * (1 - x) * x**v2 * (v2 + 1))   # (v+1): band strength
-    cols.append(sp["Fe"] / kT)
-    cols.append(sp["Fe+"] / kT)
+    theta = 5040.0 / T
+    for key, comps in (("Fe", HAZE_I), ("Fe+", HAZE_II)):
+        for _s, _l0, _L, chi in comps:
+            cols.append(sp[key] / kT * 10.0 ** (-chi * (theta - 1.0)))
     return np.array(cols).T

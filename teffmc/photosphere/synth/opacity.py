@@ -55,6 +55,7 @@ class Opacity:
         self.nmin = np.ceil(np.sqrt(w / 911.27)).astype(int)   # lowest ionisable level
         self.lw = lw
         self.basis, self.names = band_basis(w)                  # (n_basis, n_wave)
+        self.n_haze = sum(n.startswith("haze") for n in self.names)   # last rows
 
     def continuum(self, T, sp, rho):
         """Continuous opacity [cm^2 g^-1], shape (n_depth, n_wave)."""
@@ -87,7 +88,13 @@ class Opacity:
         return (k_hm_bf + k_hm_ff + k_h + k_ray + k_e) / rho[:, None]
 
     def lines(self, T, sp, rho, mh):
-        """Smeared molecular-band and atomic line-haze opacity [cm^2 g^-1]."""
+        """Smeared molecular-band and atomic line-haze opacity [cm^2 g^-1].
+
+        Returns (molecular bands, atomic haze), each (n_depth, n_wave).
+        """
         wts = band_weights(T, sp, mh)                       # (n_depth, n_basis)
-        stim = -np.expm1(-HC_K / (self.wave[None, :] * T[:, None]))
-        return (wts @ self.basis) * stim / rho[:, None]
+        stim = -np.expm1(-HC_K / (self.wave[None, :] * T[:, None])) / rho[:, None]
+        nh = self.n_haze
+        mol = (wts[:, :-nh] @ self.basis[:-nh]) * stim
+        haze = (wts[:, -nh:] @ self.basis[-nh:]) * stim
+        return mol, haze
