@@ -158,3 +158,21 @@ def test_resume_after_kill_9_matches_an_uninterrupted_run(target, reference, tmp
     assert after["chain"].shape[0] == reference.n_steps
     assert np.array_equal(after["chain"][:n_before], before["chain"])
     assert np.array_equal(after["log_prob"][:n_before], before["log_prob"])
+
+
+def test_a_stale_temporary_file_is_harmless(target, reference, tmp_path):
+    """A kill during a checkpoint write leaves run.h5.tmp behind; the next write replaces it."""
+    path = tmp_path / "run.h5"
+    Path(str(path) + ".tmp").write_bytes(b"half-written garbage")
+    res = run_sampler(target.log_prob, target.mean, names=target.names, seed=0,
+                      checkpoint=path, **RUN)
+    assert_same(reference, res)
+    assert not os.path.exists(str(path) + ".tmp")
+
+
+def test_a_file_that_is_not_a_checkpoint_is_refused(target, tmp_path):
+    path = tmp_path / "notes.h5"
+    path.write_text("not HDF5")
+    with pytest.raises(ConfigError, match="notes.h5:checkpoint: is not a readable"):
+        run_sampler(target.log_prob, target.mean, names=target.names, seed=0,
+                    checkpoint=path, resume=True, **RUN)
