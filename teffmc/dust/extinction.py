@@ -7,6 +7,7 @@ explicit ``astropy`` Quantity in 1/micron computed from vacuum Angstrom.
 
 import numpy as np
 
+from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa, check_range
 from teffmc.errors import ConfigError
 
@@ -151,6 +152,7 @@ class ExtinctionTable:
         self.r_v, self.r_v_range = None, (lo, hi)
         self._inv_nodes = np.linspace(1.0 / hi, 1.0 / lo, int(n_rv))  # ascending
         self._table = np.stack([_curve(law, 1.0 / s, self.wave) for s in self._inv_nodes])
+        self._interp = RowInterpolator(self._inv_nodes, self._table)
 
     def curve(self, r_v):
         """A_lambda / A_V for a batch of R_V.
@@ -179,8 +181,4 @@ class ExtinctionTable:
                 )
             return np.broadcast_to(self._table, (r_v.size, self.wave.size))
         _check_r_v(self.law, r_v, self.r_v_range)
-        inv = 1.0 / r_v
-        nodes = self._inv_nodes
-        i = np.clip(np.searchsorted(nodes, inv, side="right") - 1, 0, nodes.size - 2)
-        w = ((inv - nodes[i]) / (nodes[i + 1] - nodes[i]))[:, None]
-        return self._table[i] + w * (self._table[i + 1] - self._table[i])
+        return self._interp(1.0 / r_v)

@@ -13,6 +13,7 @@ from importlib.metadata import PackageNotFoundError, version
 import numpy as np
 
 from teffmc.dust import cache
+from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa
 from teffmc.dust.materials import get_material
 from teffmc.dust.mie import _check_spread, efficiencies, lognormal_weights
@@ -82,18 +83,22 @@ def _m_nodes(mat, wave):
     return order, path, m
 
 
-def interp_log_radius(ln_grid, table, radius, key="grain_radius"):
+def interp_log_radius(ln_grid, table, radius, key="grain_radius", out=None):
     """Interpolate rows of ``table`` linearly in ln radius for a batch of radii.
 
     Parameters
     ----------
     ln_grid : numpy.ndarray, shape (n_radius,)
         ln of the tabulated radii [ln micron], ascending.
-    table : numpy.ndarray, shape (n_radius, n_pix)
+    table : numpy.ndarray or RowInterpolator, shape (n_radius, n_pix)
+        The table, or a :class:`~teffmc.dust._interp.RowInterpolator` over
+        ``ln_grid`` (faster for repeated calls).
     radius : array_like, shape (n,)
         Radii [micron] inside the tabulated range.
     key : str
         Parameter name for the error message.
+    out : numpy.ndarray, optional
+        Where to write the result (RowInterpolator only).
 
     Returns
     -------
@@ -113,6 +118,8 @@ def interp_log_radius(ln_grid, table, radius, key="grain_radius"):
             key=key, value=float(r[bad][0]),
         )
     t = np.clip(np.log(r), ln_grid[0], ln_grid[-1])
+    if isinstance(table, RowInterpolator):
+        return table(t, out=out)
     i = np.clip(np.searchsorted(ln_grid, t, side="right") - 1, 0, ln_grid.size - 2)
     w = ((t - ln_grid[i]) / (ln_grid[i + 1] - ln_grid[i]))[:, None]
     return table[i] + w * (table[i + 1] - table[i])

@@ -44,6 +44,7 @@ scattering gain would only rescale ``veil_tau``).
 
 import numpy as np
 
+from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa
 from teffmc.dust.mietable import MieTable, interp_log_radius
 from teffmc.errors import ConfigError
@@ -140,9 +141,10 @@ class Veil:
         self.table = table
         self._ln_r = np.log(table.radius)
         q = table.table_q_ext
-        self._q_rel = q[:, pix] / q[:, ref:ref + 1]
+        self._q_rel = RowInterpolator(self._ln_r, q[:, pix] / q[:, ref:ref + 1])
         albedo = table.table_q_sca[:, pix] / q[:, pix]
-        self._wf = albedo * forward_fraction(table.table_g[:, pix])
+        self._wf = RowInterpolator(self._ln_r, albedo * forward_fraction(table.table_g[:, pix]))
+        self._work = None
 
     def optical_depth(self, veil_tau, grain_radius=None):
         """Veil optical depth tau(lambda) on the pixels, shape (n, n_pix).
@@ -194,10 +196,21 @@ class Veil:
             return 1.0 - cover * (1.0 - np.exp(-tau))[:, None] * np.ones(self.wave.size)
         if grain_radius is None:
             raise ConfigError("a Mie veil needs grain_radius", key="grain_radius")
-        q_rel = interp_log_radius(self._ln_r, self._q_rel, grain_radius)
+        if self.scattering and veil_scatter is None:
+            raise ConfigError("a scattering veil needs veil_scatter", key="veil_scatter")
+        # in place, one (n, n_pix) allocation: see teffmc.dust._interp
+        f = interp_log_radius(self._ln_r, self._q_rel, grain_radius)
         if self.scattering:
-            if veil_scatter is None:
-                raise ConfigError("a scattering veil needs veil_scatter", key="veil_scatter")
             s = _batch(veil_scatter, "veil_scatter", 0.0, 1.0)[:, None]
-            q_rel *= 1.0 - s * interp_log_radius(self._ln_r, self._wf, grain_radius)
-        return 1.0 - cover * (1.0 - np.exp(-tau[:, None] * q_rel))
+            if self._work is None or self._work.shape != f.shape:
+                self._work = np.empty(f.shape)
+            wf = interp_log_radius(self._ln_r, self._wf, grain_radius, out=self._work)
+            wf *= -s
+            wf += 1.0
+            f *= wf  # tau / veil_tau of the effective extinction, 1 - s omega F
+        f *= -tau[:, None]
+        np.exp(f, out=f)
+        f -= 1.0
+        f *= cover
+        f += 1.0  # 1 - c (1 - T); exactly 1 when tau or c is 0
+        return f
