@@ -52,7 +52,7 @@ def main():
         print(f"Veil(mie, {material}, 0.1 dex) build: {t_build:.1f} s cold, {t_cached:.3f} s cached")
         tau, cover = rng.uniform(0, 2, n), rng.uniform(0, 1, n)
         radius, s = rng.uniform(0.05, 5.0, n), rng.uniform(0, 1, n)
-        ms = per_call_ms(lambda: veil.factor(tau, cover, radius, s))
+        ms = per_call_ms(lambda v=veil, a=(tau, cover, radius, s): v.factor(*a))
         print(f"Veil.factor (scattering, {n} x {N_PIX}): {ms:.3f} ms")
     off = Veil("mie", wave, "silicate", 0.1, scattering=False)
     print(f"Veil.factor (no scattering):       {per_call_ms(lambda: off.factor(tau, cover, radius)):.3f} ms")

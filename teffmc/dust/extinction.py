@@ -11,7 +11,7 @@ from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa, check_range
 from teffmc.errors import ConfigError
 
-__all__ = ["LAWS", "extinction_curve", "ExtinctionTable"]
+__all__ = ["LAWS", "ExtinctionTable", "extinction_curve"]
 
 #: name -> (``dust_extinction.parameter_averages`` class, paper). All take R_V.
 #: Paper citations from memory.

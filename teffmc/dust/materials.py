@@ -11,7 +11,7 @@ import numpy as np
 from teffmc.dust._wave import as_wave_aa, check_range
 from teffmc.errors import ConfigError
 
-__all__ = ["Material", "Sellmeier", "ConstantIndex", "MATERIALS", "get_material"]
+__all__ = ["MATERIALS", "ConstantIndex", "Material", "Sellmeier", "get_material"]
 
 
 class Material:

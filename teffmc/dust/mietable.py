@@ -185,7 +185,7 @@ class MieTable:
 
     def _compute(self):
         spread = self.spread_dex > 0
-        order, path, m = _m_nodes(self.material, self.wave)
+        order, path, _ = _m_nodes(self.material, self.wave)
         lam = self.wave[order] * 1e-4  # [micron]
         n_seg = max(int(np.ceil(path[-1] / DM_TOL[spread])), 1)
         t = path / (path[-1] / n_seg) if path[-1] > 0 else np.zeros_like(path)

@@ -49,7 +49,7 @@ from teffmc.dust._wave import as_wave_aa
 from teffmc.dust.mietable import MieTable, interp_log_radius
 from teffmc.errors import ConfigError
 
-__all__ = ["VEIL_KINDS", "Veil", "forward_fraction", "V_WAVE"]
+__all__ = ["VEIL_KINDS", "V_WAVE", "Veil", "forward_fraction"]
 
 VEIL_KINDS = ("mie", "grey")
 #: Reference wavelength of veil_tau [Angstrom, vacuum] (0.55 micron, Johnson V; common
