@@ -12,10 +12,10 @@ import time
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 os.environ.setdefault("OMP_NUM_THREADS", "1")
 
-import numpy as np  # noqa: E402
+import numpy as np
 
-from teffmc.photosphere.synth import atmosphere as atm_mod  # noqa: E402
-from teffmc.photosphere.synth.build import LOGG, MH, TEFF, compute_column  # noqa: E402
+from teffmc.photosphere.synth import atmosphere as atm_mod
+from teffmc.photosphere.synth.build import LOGG, MH, TEFF, compute_column
 
 
 def main():

@@ -61,7 +61,7 @@ def test_transfer_of_a_linear_source_function():
     F = emergent_flux(tau, S)
     if np.max(np.abs(F / (np.pi * (a + 2 * b / 3)) - 1)) > 1e-6:
         pytest.fail(f"emergent flux {F} vs {np.pi * (a + 2 * b / 3)}")
-    J, H = moments(tau, S)
+    _J, H = moments(tau, S)
     deep = tau[:, 0] > 10
     if np.max(np.abs(H[deep] / (b / 3) - 1)) > 1e-3:
         pytest.fail("deep flux of a linear source should be b/3")

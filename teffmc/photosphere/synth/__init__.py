@@ -12,5 +12,15 @@ publication-grade temperatures users import a validated grid.
 from .atmosphere import Atmosphere, model_atmosphere, wave_fine, wave_full
 from .build import LOGG, MH, TEFF, bolometric_deviation, build_grid, surface_flux
 
-__all__ = ["Atmosphere", "model_atmosphere", "surface_flux", "build_grid",
-           "bolometric_deviation", "wave_fine", "wave_full", "TEFF", "LOGG", "MH"]
+__all__ = [
+           "LOGG",
+           "MH",
+           "TEFF",
+           "Atmosphere",
+           "bolometric_deviation",
+           "build_grid",
+           "model_atmosphere",
+           "surface_flux",
+           "wave_fine",
+           "wave_full",
+]

@@ -24,7 +24,7 @@ functions: e.g. Mihalas 1978 ch. 7 on line blanketing, from memory).
 """
 
 from dataclasses import dataclass, field
-from functools import lru_cache
+from functools import cache, lru_cache
 
 import numpy as np
 
@@ -34,8 +34,16 @@ from .constants import ABUND, AMU, KB, MASS, SIGMA
 from .opacity import Opacity
 from .radiation import emergent_flux, moments, planck
 
-__all__ = ["Atmosphere", "model_atmosphere", "wave_fine", "wave_work", "wave_full",
-           "W_ODF", "M_ODF", "H_ODF"]
+__all__ = [
+    "H_ODF",
+    "M_ODF",
+    "W_ODF",
+    "Atmosphere",
+    "model_atmosphere",
+    "wave_fine",
+    "wave_full",
+    "wave_work",
+]
 
 W_ODF = np.array([0.3, 0.4, 0.3])
 M_ODF = np.array([0.3, 0.8, (1.0 - 0.3 * 0.3 - 0.4 * 0.8) / 0.3])     # molecular bands
@@ -49,27 +57,27 @@ def _logwave(lo, hi, r):
     return lo * np.exp(np.arange(n) / r)
 
 
-@lru_cache(maxsize=None)
+@cache
 def wave_fine():
     """The grid's wavelength axis: vacuum A, 3000-50000 A, log-uniform, R_pix = 2000."""
     return _logwave(3000.0, 50000.0, R_FINE)
 
 
-@lru_cache(maxsize=None)
+@cache
 def _ext():
     blue = _logwave(1000.0, 3000.0, 100.0)[:-1]
     red = _logwave(50000.0, 2.0e6, 50.0)[1:]
     return blue, red
 
 
-@lru_cache(maxsize=None)
+@cache
 def wave_full():
     """Fine axis extended coarsely to 0.1-200 um (for bolometric integrals)."""
     b, r = _ext()
     return np.concatenate([b, wave_fine(), r])
 
 
-@lru_cache(maxsize=None)
+@cache
 def wave_work():
     """Coarser axis used while iterating the temperature structure."""
     b, r = _ext()

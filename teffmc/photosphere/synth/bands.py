@@ -17,7 +17,7 @@ import numpy as np
 
 from .constants import HC_K, KB
 
-__all__ = ["band_basis", "band_weights", "TIO_SYSTEMS"]
+__all__ = ["TIO_SYSTEMS", "band_basis", "band_weights"]
 
 _C2 = HC_K * 1e-8                 # hc/k [cm K]
 _PI_E2_MC2 = 8.853e-13            # pi e^2/(m_e c^2) [cm] (= pi r_e, CODATA 2018 r_e)

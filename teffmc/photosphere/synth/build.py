@@ -13,13 +13,31 @@ import time
 import numpy as np
 
 from ...errors import GridError
-from .atmosphere import (LOGTAU, R_FINE, W_ODF, M_ODF, flux_of, model_atmosphere,
-                         wave_fine, wave_full, _opacity)
+from .atmosphere import (
+    H_ODF,
+    LOGTAU,
+    M_ODF,
+    R_FINE,
+    W_ODF,
+    _opacity,
+    flux_of,
+    model_atmosphere,
+    wave_fine,
+    wave_full,
+)
 from .constants import SIGMA
 from .opacity import Opacity
 
-__all__ = ["TEFF", "LOGG", "MH", "surface_flux", "bolometric_deviation", "build_grid",
-           "compute_column", "ENERGY_TOL"]
+__all__ = [
+    "ENERGY_TOL",
+    "LOGG",
+    "MH",
+    "TEFF",
+    "bolometric_deviation",
+    "build_grid",
+    "compute_column",
+    "surface_flux",
+]
 
 TEFF = np.concatenate([np.arange(2600.0, 4501.0, 100.0), np.arange(4750.0, 7001.0, 250.0)])
 LOGG = np.arange(-1.0, 5.01, 1.0)
@@ -163,7 +181,8 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
         "wavelength": f"vacuum, log-uniform, R_pix = {R_FINE:g}, "
                       f"{wave_fine()[0]:.1f}-{wave_fine()[-1]:.1f} A",
         "depth_grid": f"log10 tau_Ross {LOGTAU[0]:g}..{LOGTAU[-1]:g}, {LOGTAU.size} points",
-        "odf": f"weights {W_ODF.tolist()}, multipliers {np.round(M_ODF, 4).tolist()}",
+        "odf": f"weights {W_ODF.tolist()}, molecular multipliers "
+               f"{np.round(M_ODF, 4).tolist()}, haze multipliers {np.round(H_ODF, 4).tolist()}",
         "energy_check": "F_bol = int F_lambda over 0.1-200 um + Rayleigh-Jeans tail, "
                         "compared with sigma Teff^4, no rescaling",
         "energy_max_abs_deviation": f"{np.nanmax(np.abs(dev[good])) if good.any() else np.nan:.5f}",

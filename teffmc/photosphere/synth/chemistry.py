@@ -19,10 +19,9 @@ vectorised over all (T, P_gas) points.
 
 import numpy as np
 
-from .constants import (ABUND, AMU, CHI1, CHI_HMINUS, EV, H, HC_K, KB, MASS, SAHA_CONST,
-                        U0, U1)
+from .constants import ABUND, AMU, CHI1, CHI_HMINUS, EV, HC_K, KB, MASS, SAHA_CONST, U0, U1, H
 
-__all__ = ["Molecule", "MOLECULES", "equilibrium", "PASSIVE"]
+__all__ = ["MOLECULES", "PASSIVE", "Molecule", "equilibrium"]
 
 PASSIVE = ("He", "N", "Na", "Mg", "Al", "Si", "K", "Ca", "Fe")
 _ACTIVE = ("H", "C", "O", "Ti")     # index 0..3 of the unknowns; 4 is the electron

@@ -8,8 +8,20 @@ from the source at the time of writing, and is approximate.
 import numpy as np
 
 __all__ = [
-    "H", "C", "KB", "ME", "AMU", "SIGMA", "EV", "ELEMENTS", "ABUND", "MASS",
-    "CHI1", "U0", "U1", "SAHA_CONST",
+    "ABUND",
+    "AMU",
+    "CHI1",
+    "ELEMENTS",
+    "EV",
+    "KB",
+    "MASS",
+    "ME",
+    "SAHA_CONST",
+    "SIGMA",
+    "U0",
+    "U1",
+    "C",
+    "H",
 ]
 
 # CODATA 2018 (exact SI-defined values converted to cgs; sigma derived from them).

@@ -8,8 +8,8 @@ of shape (n_depth, n_wave). Scattering (Rayleigh, Thomson) is treated as true ab
 
 import numpy as np
 
-from .constants import HC_K, SIGMA_T
 from .bands import band_basis, band_weights
+from .constants import HC_K, SIGMA_T
 
 __all__ = ["Opacity"]
 

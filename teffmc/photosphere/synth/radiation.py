@@ -12,9 +12,9 @@ deepest point.
 import numpy as np
 from scipy.special import expn
 
-from .constants import C, H, HC_K
+from .constants import HC_K, C, H
 
-__all__ = ["planck", "moments", "emergent_flux", "MU", "WMU"]
+__all__ = ["MU", "WMU", "emergent_flux", "moments", "planck"]
 
 # 4-point Gauss-Legendre quadrature on [0, 1] (Abramowitz & Stegun 1964, Table 25.4,
 # from memory; recomputed here by numpy)
