@@ -99,7 +99,7 @@ def _species(u, T, abund, lk):
     for el in ("C", "O", "Ti"):
         s[el + "+"] = s[el] * lk["phi_" + el] / pe
     for j, m in enumerate(MOLECULES):
-        s[m.name] = np.exp(np.tensordot(_MOL_EXP[j], u, axes=(0, 0)) - lk["mol"][j])
+        s[m.name] = np.exp(sum(_MOL_EXP[j, i] * u[i] for i in range(5)) - lk["mol"][j])
     pHN = s["H"] + s["H+"] + s["H-"] + 2 * s["H2"] + s["OH"] + 2 * s["H2O"]
     s["HN"] = pHN
     pos, tot = s["H+"] + s["C+"] + s["O+"] + s["Ti+"], 0.0

@@ -95,6 +95,8 @@ class Opacity:
         wts = band_weights(T, sp, mh)                       # (n_depth, n_basis)
         stim = -np.expm1(-HC_K / (self.wave[None, :] * T[:, None])) / rho[:, None]
         nh = self.n_haze
-        mol = (wts[:, :-nh] @ self.basis[:-nh]) * stim
-        haze = (wts[:, -nh:] @ self.basis[-nh:]) * stim
+        # einsum (no BLAS) keeps the summation order fixed whatever the thread count, so
+        # the grid build is bit-reproducible
+        mol = np.einsum("ij,jk->ik", wts[:, :-nh], self.basis[:-nh]) * stim
+        haze = np.einsum("ij,jk->ik", wts[:, -nh:], self.basis[-nh:]) * stim
         return mol, haze
