@@ -34,24 +34,26 @@ __all__ = [
 def default_moves():
     """Return the default move mixture: 80 % DEMove, 20 % StretchMove.
 
-    Measured with ``python bench/bench_sample.py moves`` (48 walkers, 20000 steps,
-    tau from steps 2000-20000, one seed; emcee 3.1.6):
+    Measured with ``python bench/bench_sample.py moves`` (48 walkers, 20000 steps, tau
+    from steps 2000-20000, mean of 3 seeds with the per-seed range; emcee 3.1.6):
 
-    ===================== ========== =========== =========== ===========
-    move mixture           gauss5 acc gauss5 tau  banana acc  banana tau
-    ===================== ========== =========== =========== ===========
-    Stretch                0.55       59          0.53        184
-    DE                     0.29       17          0.17        133
-    DE 0.8 + Snooker 0.2   0.23       21          0.14        100
-    DE 0.8 + Stretch 0.2   0.34       19          0.24        84
-    DE 0.7 + Stretch 0.3   0.37       20          0.28        101
-    ===================== ========== =========== =========== ===========
+    ===================== ========== =============== ========== ===============
+    move mixture          gauss5 acc gauss5 max tau  banana acc banana max tau
+    ===================== ========== =============== ========== ===============
+    Stretch               0.55       56 (54-59)      0.53       174 (167-181)
+    DE                    0.29       17 (16-17)      0.17       110 (80-155)
+    DE 0.8 + Snooker 0.2  0.23       22 (21-22)      0.14       109 (103-118)
+    DE 0.8 + Stretch 0.2  0.34       19 (19-19)      0.24       110 (104-113)
+    DE 0.7 + Stretch 0.3  0.37       21 (20-21)      0.28       95 (87-98)
+    ===================== ========== =============== ========== ===============
 
     gauss5: 5-D Gaussian, all correlations 0.9, scales 1 to 1000; banana: twisted
-    Gaussian x0 ~ N(0, 10^2), x1 + 0.03 (x0^2 - 100) ~ N(0, 1) (Haario et al. 1999).
-    tau = max over parameters, in steps. DE alone is best on the Gaussian; a fifth of
-    stretch moves helps most on the curved target; the snooker move costs twice the
-    time per step here.
+    Gaussian x0 ~ N(0, 10^2), x1 + 0.03 (x0^2 - 100) ~ N(0, 1) (Haario, Saksman &
+    Tamminen 1999, from memory). tau in steps. Any DE-dominated mixture beats the
+    stretch move 3x on the correlated Gaussian and 1.6x on the banana. DE alone is
+    best on the Gaussian but erratic from seed to seed on the banana; a fifth of
+    stretch moves costs 15 % on the Gaussian and removes that spread. The snooker
+    move is slower per step and no better here.
 
     Returns
     -------
