@@ -14,8 +14,7 @@ J. Comput. Graph. Stat. 15, 675, from memory).
 
 Measured (emcee 3.1.6, 16 walkers, check_every 100, default stop rule; all converged):
 seed 1, n 100: teff 73.0 %, a_v 72.0 %, ~0.5 s CPU per injection;
-seed 1, n 200: teff 71.5 %, a_v 72.5 %; seed 2, n 500: teff 67.6 %, a_v 68.0 %
-(binomial standard deviations 4.7, 3.3 and 2.1 %).
+seed 2, n 500: teff 67.6 %, a_v 68.0 % (binomial standard deviations 4.7 and 2.1 %).
 
 ``moves`` prints acceptance fraction and integrated autocorrelation time of candidate
 move mixtures on a correlated 5-D Gaussian and a twisted-Gaussian "banana"; the table in
