@@ -21,6 +21,12 @@ atomic lines leave gaps); the flux is the weighted mean of the channels. The mul
 were chosen together with the haze amplitudes (solar colours) and checked against the
 TiO band-depth and V-sensitivity acceptance tests. The weights are our choice (idea of opacity distribution
 functions: e.g. Mihalas 1978 ch. 7 on line blanketing, from memory).
+
+Known limitations (approximate by design): no convection, no radiation pressure (so the
+hottest log g = -1 models are formally super-Eddington but are computed anyway), no
+sphericity, no turbulence, constant atomic partition functions, scattering as absorption.
+Near 3600 K, log g 0, V fades by ~0.21 mag for a 50 K cooling (about twice a blackbody),
+less than the ~0.4 mag quoted for published red-supergiant grids (REFERENCES.md).
 """
 
 from dataclasses import dataclass, field
@@ -115,7 +121,8 @@ def _rosseland(op, T, kappas):
     """Rosseland mean over wavelengths and ODF channels (n_depth,)."""
     w = op.wave
     x = 1.43877688e8 / (w[None, :] * T[:, None])
-    # dB/dT ∝ x^2 e^x / (e^x - 1)^2 / lambda^4 (written stably above up to a constant)
+    # dB/dT ∝ x^2 e^x / (e^x - 1)^2 / lambda^4 = x^2 / (4 sinh^2(x/2)) / lambda^4, with
+    # x = hc/(lambda k T) (1.43877688e8 A K from CODATA 2018 h, c, k)
     dbdt = x**2 / (4.0 * np.sinh(np.minimum(x, 700) / 2.0) ** 2) / (w[None, :] * 1e-4) ** 4
     inv = sum(wk / k for wk, k in zip(W_ODF, kappas))
     return _trapz(dbdt, w) / _trapz(inv * dbdt, w)
