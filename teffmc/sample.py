@@ -19,7 +19,7 @@ import numpy as np
 from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
 from teffmc.sampling_checkpoint import memory_backend, resume_state, write_checkpoint
 from teffmc.sampling_start import find_start, initial_ball
-from teffmc.sampling_stop import autocorr_time, burn_thin, stop_rule
+from teffmc.sampling_stop import autocorr_time, burn_thin, split_rhat, stop_rule
 
 __all__ = [
     "SampleResult",
@@ -166,9 +166,19 @@ def _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale):
     return emcee.State(coords, log_prob=lp, random_state=random_state)
 
 
+def _rhat_check(chain, tau, n, names, rhat_max, text):
+    """The tau rule passed: confirm with R-hat on the draws the run would keep."""
+    burn, thin = burn_thin(tau, n, True)
+    r = split_rhat(chain[burn::thin])
+    k = int(np.nanargmax(r)) if np.any(np.isfinite(r)) else 0
+    text = f"{text}; max R-hat {r[k]:.3f} ({names[k]}, limit {rhat_max})"
+    return bool(np.all(np.nan_to_num(r, nan=1.0) < rhat_max)), text
+
+
 def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000,
                 min_steps=1000, check_every=500, tau_factor=50.0, tau_rtol=0.01, moves=None,
-                checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3):
+                checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3,
+                rhat_max=1.01):
     """Sample a posterior with emcee until the autocorrelation stop rule is met.
 
     Parameters
@@ -205,6 +215,10 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
         Called with one line of text at every check.
     ball_scale : float, optional
         Start-ball standard deviation relative to ``|x0|`` (absolute where x0 is 0).
+    rhat_max : float or None, optional
+        Also require the rank-normalised split R-hat of the burned and thinned draws
+        (walkers as chains; the statistic the summary reports) below this for every
+        parameter before stopping; None switches the check off.
 
     Returns
     -------
@@ -263,6 +277,9 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
                 converged, text = stop_rule(n, tau, tau_at(prev), names=names,
                                              min_steps=min_steps, tau_factor=tau_factor,
                                              tau_rtol=tau_rtol, prev_step=prev)
+                if converged and rhat_max is not None:
+                    converged, text = _rhat_check(sampler.get_chain(), tau, n, names, rhat_max,
+                                                  text)
                 acc = float(np.mean(backend.accepted / n))
                 say(f"{text}; acceptance {acc:.2f}")
                 if converged or n >= max_steps:

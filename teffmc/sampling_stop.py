@@ -122,3 +122,48 @@ def burn_thin(tau, n, converged):
         burn = min(burn, n // 2)
         thin = min(thin, max(1, (n - burn) // 10))
     return burn, thin
+
+
+def _basic_split_rhat(x):
+    """Split R-hat of x (n_draws, n_chains) (Gelman et al. 2013, BDA3 eq. 11.4)."""
+    n = x.shape[0] // 2
+    halves = np.concatenate([x[:n], x[-n:]], axis=1)
+    w = np.mean(np.var(halves, axis=0, ddof=1))
+    b = n * np.var(np.mean(halves, axis=0), ddof=1)
+    if w <= 0:
+        return np.nan
+    return float(np.sqrt(((n - 1) / n * w + b / n) / w))
+
+
+def _rank_normal(x):
+    from scipy.special import ndtri
+    from scipy.stats import rankdata
+
+    r = rankdata(x, method="average").reshape(x.shape)
+    return ndtri((r - 0.375) / (x.size + 0.25))
+
+
+def split_rhat(chain):
+    """Rank-normalised split R-hat per parameter, the larger of bulk and tail versions.
+
+    Vehtari, Gelman, Simpson, Carpenter & Bürkner 2021, Bayesian Analysis 16, 667
+    (the estimator ArviZ reports); walkers count as chains.
+
+    Parameters
+    ----------
+    chain : numpy.ndarray, shape (n_draws, n_walkers, ndim)
+
+    Returns
+    -------
+    numpy.ndarray, shape (ndim,)
+    """
+    out = np.empty(chain.shape[2])
+    for i in range(chain.shape[2]):
+        x = chain[:, :, i]
+        if x.shape[0] < 4 or np.ptp(x) == 0:
+            out[i] = np.nan
+            continue
+        bulk = _basic_split_rhat(_rank_normal(x))
+        tail = _basic_split_rhat(_rank_normal(np.abs(x - np.median(x))))
+        out[i] = max(bulk, tail)
+    return out

@@ -61,7 +61,7 @@ def test_log_gets_one_line_per_check(target):
 
 def test_progress_bar_stays_quiet_off_a_terminal(target, capsys):
     run_sampler(target.log_prob, target.mean, names=target.names, max_steps=300,
-                **{**FAST, "progress": True, "tau_factor": 1.0, "tau_rtol": 1.0})
+                **{**FAST, "progress": True, "tau_factor": 1.0, "tau_rtol": 1.0, "rhat_max": None})
     out, err = capsys.readouterr()
     assert out == "" and err == ""
 
@@ -74,14 +74,14 @@ class _Terminal(io.StringIO):
 def test_progress_bar_on_a_terminal(target, monkeypatch):
     monkeypatch.setattr(sys, "stderr", _Terminal())
     run_sampler(target.log_prob, target.mean, names=target.names, max_steps=300,
-                **{**FAST, "progress": True, "tau_factor": 1.0, "tau_rtol": 1.0})
+                **{**FAST, "progress": True, "tau_factor": 1.0, "tau_rtol": 1.0, "rhat_max": None})
     assert "200/300" in sys.stderr.getvalue()
 
 
 def test_no_progress_bar_on_a_terminal_when_disabled(target, monkeypatch):
     monkeypatch.setattr(sys, "stderr", _Terminal())
     run_sampler(target.log_prob, target.mean, names=target.names, max_steps=300,
-                **{**FAST, "tau_factor": 1.0, "tau_rtol": 1.0})
+                **{**FAST, "tau_factor": 1.0, "tau_rtol": 1.0, "rhat_max": None})
     assert sys.stderr.getvalue() == ""
 
 
