@@ -169,7 +169,7 @@ def _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale):
 def _rhat_check(chain, tau, n, names, rhat_max, text):
     """The tau rule passed: confirm with R-hat on the draws the run would keep."""
     burn, thin = burn_thin(tau, n, True)
-    r = split_rhat(chain[burn::thin])
+    r = split_rhat(chain[burn + thin - 1::thin])  # emcee get_chain(discard, thin) indexing
     k = int(np.nanargmax(r)) if np.any(np.isfinite(r)) else 0
     text = f"{text}; max R-hat {r[k]:.3f} ({names[k]}, limit {rhat_max})"
     return bool(np.all(np.nan_to_num(r, nan=1.0) < rhat_max)), text
