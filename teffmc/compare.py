@@ -46,6 +46,10 @@ def compare_runs(run_dirs, out=None):
     if len(run_dirs) < 2:
         raise DataError("compare needs at least two run folders", file=str(run_dirs[0]))
     runs = [(Path(d), *load_run(d)) for d in run_dirs]
+    labels = [s.get("hypothesis") or d.name for d, _, s in runs]
+    if len(set(labels)) != len(labels):
+        raise DataError(f"two runs have the same name ({', '.join(labels)}); rename a folder",
+                        file=str(run_dirs[-1]))
     ref_dir, ref_dt, _ = runs[0]
     for d, dt, _ in runs[1:]:
         if dt.attrs.get("data_checksum") != ref_dt.attrs.get("data_checksum"):
@@ -57,9 +61,9 @@ def compare_runs(run_dirs, out=None):
     rows, pointwise = [], {}
     for d, dt, summ in runs:
         elpd, se, elpd_i, k = post_mod.loo(dt)
-        pointwise[d.name] = elpd_i
+        pointwise[summ.get("hypothesis") or d.name] = elpd_i
         ev = summ.get("evidence", {})
-        rows.append({"run": d.name, "path": str(d), "elpd_loo": elpd, "se": se,
+        rows.append({"run": summ.get("hypothesis") or d.name, "path": str(d), "elpd_loo": elpd, "se": se,
                      "n_points": int(elpd_i.size), "n_bad_k": int(np.sum(k > K_WARN)),
                      "max_k": float(np.max(k)), "converged": bool(summ["converged"]),
                      "log_z": ev.get("log_z", np.nan), "log_z_err": ev.get("log_z_err", np.nan)})
@@ -79,7 +83,8 @@ def compare_runs(run_dirs, out=None):
         _write(rows, out)
         from .report.compare_figure import compare_figure
 
-        compare_figure([(d.name, dt, s) for d, dt, s in runs], out / "compare.png")
+        compare_figure([(s.get("hypothesis") or d.name, dt, s) for d, dt, s in runs],
+                       out / "compare.png")
     return Comparison(rows=rows, text=text, out=out)
 
 

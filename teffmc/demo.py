@@ -18,9 +18,9 @@ __all__ = ["TRUTH", "make_demo_data", "run_demo"]
 #: True parameters of the invented star, per epoch (not a real star).
 TRUTH = {
     "bright": {"teff": 3650.0, "logg": 0.0, "mh": 0.0, "a_v": 0.9, "r_v": 3.1, "theta": 12.0,
-               "veil_tau": 0.0, "veil_cover": 0.0, "grain_radius": 1.0},
+               "veil_tau": 0.0, "veil_cover": 1.0, "grain_radius": 1.0},
     "faint": {"teff": 3600.0, "logg": 0.0, "mh": 0.0, "a_v": 0.9, "r_v": 3.1, "theta": 12.0,
-              "veil_tau": 1.5, "veil_cover": 0.7, "grain_radius": 1.0},
+              "veil_tau": 0.7, "veil_cover": 1.0, "grain_radius": 1.0},
 }
 DISTANCE_PC = 700.0
 SEED = 20261202
@@ -63,8 +63,11 @@ logg = {{ fixed = 0.0 }}
 mh = {{ fixed = 0.0 }}
 a_v = {{ dist = "uniform", low = 0.0, high = 4.0 }}
 theta = {{ dist = "loguniform", low = 1.0, high = 100.0 }}
-veil_tau = {{ dist = "uniform", low = 0.0, high = 4.0 }}
-veil_cover = {{ dist = "uniform", low = 0.0, high = 1.0 }}
+# The veil is fresh: none at the bright epoch. At the faint epoch it covers the whole
+# disc (for nearly grey grains only cover x (1 - exp(-tau)) would be measurable).
+"veil_tau@bright" = {{ fixed = 0.0 }}
+"veil_tau@faint" = {{ dist = "uniform", low = 0.0, high = 3.0 }}
+veil_cover = {{ fixed = 1.0 }}
 grain_radius = {{ dist = "loguniform", low = 0.05, high = 3.0 }}
 
 [sampler]
@@ -73,8 +76,7 @@ max_steps = 8000
 min_steps = 1000
 check_every = 250
 seed = 7
-evidence = true
-nlive = 150
+# evidence = true adds a nested-sampling ln Z to the comparison (slower)
 """
 
 
@@ -114,31 +116,33 @@ def make_demo_data(folder, *, grid_name=None, seed=SEED):
 def run_demo(out, *, quiet=False):
     """``teffmc demo``: simulate the invented star into ``out/data`` and analyse it.
 
-    ``out`` holds the run of the first hypothesis (the veil), ``out/hypotheses/``
-    the other runs and ``out/compare.*`` the comparison.
+    ``out`` holds the data (``out/data``), the run of the first hypothesis (the
+    veil), ``out/hypotheses/`` the other runs and ``out/compare.*`` the comparison.
     """
     from .compare import compare_runs
     from .config import load_config
     from .run import fit_one, summary_to_text
 
     out = Path(out)
-    staging = out.with_name(out.name + ".data")
-    if staging.exists():
-        shutil.rmtree(staging)
-    cfg_path = make_demo_data(staging)
+    if out.exists():
+        shutil.rmtree(out)
+    cfg_path = make_demo_data(out / "data")
     if not quiet:
-        print(f"demo data for the invented star Ficta written to {staging}", file=sys.stderr)
+        print(f"demo data for the invented star Ficta written to {out / 'data'}", file=sys.stderr)
     cfg = load_config(cfg_path)
     variants = cfg.variants()
     models = [v.model for _, v in variants]
     dirs, results = [], {}
     for i, (name, v) in enumerate(variants):
-        d = out if i == 0 else out / "hypotheses" / name
+        d = out / "hypotheses" / name
         if not quiet:
             print(f"== hypothesis {name}", file=sys.stderr)
-        results[name] = fit_one(v, d, quiet=quiet, other_models=models)
-        if i == 0:
-            shutil.move(str(staging), str(out / "data"))
+        results[name] = fit_one(v, d, quiet=quiet, other_models=models, hypothesis=name)
+        if i == 0:  # the first hypothesis's run is also the demo's top-level run
+            for f in d.iterdir():
+                shutil.move(str(f), str(out / f.name))
+            d.rmdir()
+            d = out
         dirs.append(d)
     comp = compare_runs(dirs, out)
     for name, res in results.items():

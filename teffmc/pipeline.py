@@ -1,8 +1,10 @@
 """The stages of a fit after preparation: sampling, derived quantities, outputs."""
 
 import json
+import math
 import platform
 import sys
+from dataclasses import replace
 from importlib import metadata
 
 import numpy as np
@@ -18,6 +20,8 @@ from .tomlout import dumps_toml
 __all__ = ["sample_posterior", "finish_run", "derived_quantities", "VBand"]
 
 CHUNK = 512
+MAX_STORED_DRAWS = 8000   # posterior draws kept in posterior.nc (all walkers together)
+MAX_LOO_DRAWS = 2000      # draws with pointwise log-likelihood (PSIS-LOO works well here)
 CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synthesis; "
                 "for publication-grade temperatures import a validated model grid.")
 
@@ -140,17 +144,25 @@ def _predict(prep, x):
     return out
 
 
-def finish_run(prep, result, folder, *, log):
+def finish_run(prep, result, folder, *, log, hypothesis=None):
     """Derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
     cfg, space = prep.config, prep.space
     n_draws, n_walkers, ndim = result.chain.shape
+    keep = max(1, math.ceil(n_draws * n_walkers / MAX_STORED_DRAWS))
+    if keep > 1:  # the chain is longer than a summary needs: store every keep-th draw
+        result = replace(result, chain=result.chain[::keep], log_prob=result.log_prob[::keep])
+        n_draws = result.chain.shape[0]
     flat = result.chain.reshape(-1, ndim)
     rng = np.random.default_rng(cfg.sampler.seed + 1)
     log(f"derived quantities on {flat.shape[0]} draws")
     derived = {k: v.reshape(n_draws, n_walkers)
                for k, v in derived_quantities(prep, flat, rng).items()}
-    pointwise = _chunked(prep.log_post.pointwise, flat)
-    pointwise = {k: v.reshape(n_draws, n_walkers, -1).astype(np.float32)
+    # pointwise log-likelihood (for PSIS-LOO) on at most MAX_LOO_DRAWS draws: it is
+    # n_draws x n_pixels, by far the largest part of posterior.nc
+    every = max(1, math.ceil(n_draws * n_walkers / MAX_LOO_DRAWS))
+    loo_chain = result.chain[::every]
+    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim))
+    pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1).astype(np.float32)
                  for k, v in pointwise.items()}
     sub = result.chain[-min(n_draws, 4):]
     predictive = {k: v.reshape(sub.shape[0], n_walkers, -1)
@@ -181,6 +193,7 @@ def finish_run(prep, result, folder, *, log):
                         predictive=predictive, attrs=attrs, constant=constant)
     post_mod.save(dt, folder / "posterior.nc")
     summary = {
+        "hypothesis": hypothesis,
         "converged": bool(result.converged),
         "reason": result.reason,
         "n_steps": int(result.n_steps), "n_walkers": int(n_walkers),

@@ -128,7 +128,8 @@ def fit(config, out=None, *, resume=False, quiet=False):
     for name, v in variants:
         if not quiet:
             print(f"== hypothesis {name}", file=sys.stderr)
-        results[name] = fit_one(v, out / name, resume=resume, quiet=quiet, other_models=models)
+        results[name] = fit_one(v, out / name, resume=resume, quiet=quiet, other_models=models,
+                                hypothesis=name)
     comp = compare_runs([out / name for name, _ in variants], out)
     if not quiet:
         print(comp.text, file=sys.stderr)
@@ -137,7 +138,7 @@ def fit(config, out=None, *, resume=False, quiet=False):
     return best
 
 
-def fit_one(config, out, *, resume=False, quiet=False, other_models=()):
+def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothesis=None):
     """Fit one model variant into the run folder ``out`` (see :func:`fit`)."""
     from .pipeline import finish_run, sample_posterior
 
@@ -160,7 +161,7 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=()):
         with threadpool_limits(limits=1):
             result = sample_posterior(prep, partial / "chain.h5", resume=resume, quiet=quiet,
                                       log=log)
-        dt, summary = finish_run(prep, result, partial, log=log)
+        dt, summary = finish_run(prep, result, partial, log=log, hypothesis=hypothesis)
     except BaseException:
         # keep the checkpoint for --resume; the folder is clearly marked partial
         (partial / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")

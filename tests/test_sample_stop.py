@@ -57,7 +57,9 @@ RULE = {"names": ["teff", "a_v"], "min_steps": 1000, "tau_factor": 50.0, "tau_rt
     [
         (6000, [100.0, 50.0], [100.5, 50.2], 5500, True),  # long and stable
         (4000, [100.0, 50.0], [100.5, 50.2], 3500, False),  # shorter than 50 tau
-        (6000, [100.0, 50.0], [98.0, 50.0], 5500, False),  # tau moved 2 %
+        (6000, [100.0, 50.0], [97.0, 50.0], 5500, False),  # moved 3 % in 500 (limit 2.2 %)
+        (6000, [100.0, 50.0], [98.0, 50.0], 5500, True),  # moved 2 % in 500 steps
+        (6000, [100.0, 50.0], [98.0, 50.0], 5900, False),  # moved 2 % in 100 (limit 1 %)
         (6000, [100.0, 50.0], [np.nan, np.nan], 0, False),  # no earlier estimate
         (900, [10.0, 5.0], [10.0, 5.0], 800, False),  # before min_steps
         (6000, [100.0, np.nan], [100.0, 50.0], 5500, False),  # a frozen parameter
