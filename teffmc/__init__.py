@@ -20,7 +20,7 @@ _API = {
     "fit": "teffmc.run",
 }
 
-__all__ = ["__version__", *_API]
+__all__ = ["__version__", "load_grid", "synth_mag", "extinction_curve", "grain_optics", "fit"]
 
 
 def __getattr__(name):

@@ -74,7 +74,8 @@ def build_parser():
     sub = p.add_subparsers(dest="command", required=True)
 
     d = sub.add_parser("demo", help="make the invented demo star's data and fit it")
-    d.add_argument("--out", default="teffmc-demo", help="folder for the demo (default: %(default)s)")
+    d.add_argument("--out", default="teffmc-demo",
+                   help="folder for the demo (default: %(default)s)")
     d.add_argument("--quiet", action="store_true", help="no progress output")
     d.set_defaults(func=_cmd_demo)
 

@@ -63,7 +63,8 @@ def compare_runs(run_dirs, out=None):
         elpd, se, elpd_i, k = post_mod.loo(dt)
         pointwise[summ.get("hypothesis") or d.name] = elpd_i
         ev = summ.get("evidence", {})
-        rows.append({"run": summ.get("hypothesis") or d.name, "path": str(d), "elpd_loo": elpd, "se": se,
+        rows.append({"run": summ.get("hypothesis") or d.name, "path": str(d),
+                     "elpd_loo": elpd, "se": se,
                      "n_points": int(elpd_i.size), "n_bad_k": int(np.sum(k > K_WARN)),
                      "max_k": float(np.max(k)), "converged": bool(summ["converged"]),
                      "log_z": ev.get("log_z", np.nan), "log_z_err": ev.get("log_z_err", np.nan)})

@@ -115,7 +115,8 @@ class _Reader:
         if types is float and isinstance(v, int) and not isinstance(v, bool):
             v = float(v)
         if not isinstance(v, types) or (isinstance(v, bool) and types in (int, float)):
-            want = types.__name__ if isinstance(types, type) else "/".join(t.__name__ for t in types)
+            want = (types.__name__ if isinstance(types, type)
+                    else "/".join(t.__name__ for t in types))
             raise self.err(k, f"should be {want} but got {v!r}", v)
         if isinstance(v, float) and not math.isfinite(v):
             raise self.err(k, f"should be finite but got {v!r}", v)

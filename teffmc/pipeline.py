@@ -79,14 +79,15 @@ def derived_quantities(prep, flat, rng):
         p = space.epoch_values(flat, label)
         for k, v in bolometric(p, dist).items():
             out[k + suffix] = v
-        out["v_mag" + suffix] = _chunked(lambda x: vband(space.epoch_values(x, label)), flat)
+        out["v_mag" + suffix] = _chunked(
+            lambda x, label=label: vband(space.epoch_values(x, label)), flat)
     if space.multi:
         ref = space.labels[0]
         pa = space.epoch_values(flat, ref)
         for label in space.labels[1:]:
             pb = space.epoch_values(flat, label)
             out[f"delta_teff@{label}"] = pb["teff"] - pa["teff"]
-            parts = _chunked(lambda idx: dimming_budget(
+            parts = _chunked(lambda idx, pb=pb: dimming_budget(
                 vband, _take(pa, idx), _take(pb, idx)), np.arange(flat.shape[0]))
             for k, v in parts.items():
                 out[f"{k}@{label}"] = v

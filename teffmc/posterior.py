@@ -44,9 +44,7 @@ def build(result, *, derived, pointwise, observed, predictive, attrs, constant=N
 
     post = {n: _to_chain_draw(result.chain[..., i]) for i, n in enumerate(result.names)}
     post.update({n: _to_chain_draw(v) for n, v in derived.items()})
-    dims = {}
-    for name, arr in observed.items():
-        dims[name] = [f"{name}_point"]
+    dims = {name: [f"{name}_point"] for name in observed}
     data = {
         "posterior": post,
         "sample_stats": {"lp": _to_chain_draw(result.log_prob)},

@@ -1,7 +1,6 @@
 """Two epochs in one fit, and the comparison of runs (issue: epochs and hypotheses)."""
 
 import json
-import textwrap
 
 import numpy as np
 import pytest
