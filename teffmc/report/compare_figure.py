@@ -4,7 +4,7 @@ import json
 
 import numpy as np
 
-from .figures import _label, _plt
+from .figures import _label, _plt, gapped
 
 __all__ = ["compare_figure"]
 
@@ -17,7 +17,16 @@ def compare_figure(runs, path, max_params=4):
     names = [set(json.loads(dt.attrs["sampled_names"])) for _, dt, _ in runs]
     shared = [n for n in json.loads(runs[0][1].attrs["sampled_names"])
               if all(n in s for s in names)][:max_params]
-    panels = [panels_from_posterior(dt)[0] for _, dt, _ in runs]
+    # show the data set on which the hypotheses' fits differ most (chi^2 spread)
+    all_panels = [panels_from_posterior(dt) for _, dt, _ in runs]
+
+    def chi2(p):
+        return float(np.sum(((p["data"] - np.median(p["draws"], axis=0)) / p["err"]) ** 2))
+
+    spread = [np.ptp([chi2(pans[i]) for pans in all_panels])
+              for i in range(len(all_panels[0]))]
+    pick = int(np.argmax(spread))
+    panels = [pans[pick] for pans in all_panels]
     ncol = max(len(shared), 1)
     nrow = 1 + 2 * len(runs)
     fig = plt.figure(figsize=(3.0 * max(ncol, 3), 2.6 + 3.2 * len(runs)))
@@ -36,12 +45,12 @@ def compare_figure(runs, path, max_params=4):
         ax = fig.add_subplot(gs[1 + 2 * i, :])
         rax = fig.add_subplot(gs[2 + 2 * i, :], sharex=ax)
         c = colors[i % len(colors)]
-        x = np.asarray(pan["x"]) / 1e4
         med = np.median(pan["draws"], axis=0)
+        x, data, err, med = gapped(np.asarray(pan["x"]) / 1e4, pan["data"], pan["err"], med)
         style = "-" if pan["kind"] == "spectrum" else "o"
-        ax.plot(x, pan["data"], style, color="0.25", lw=0.6, ms=3, label="data")
+        ax.plot(x, data, style, color="0.25", lw=0.6, ms=3, label="data")
         ax.plot(x, med, style, color=c, lw=0.8, ms=3, mfc="none", label=f"{name}: model")
-        rax.plot(x, (pan["data"] - med) / pan["err"], style, color=c, lw=0.5, ms=3)
+        rax.plot(x, (data - med) / err, style, color=c, lw=0.5, ms=3)
         rax.axhline(0, color="0.5", lw=0.5)
         ax.set_title(f"{name}: {pan['label']}" + ("" if summ["converged"]
                                                    else "  (NOT CONVERGED)"), fontsize=9)

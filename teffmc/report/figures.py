@@ -18,6 +18,20 @@ def _plt():
     return plt
 
 
+def gapped(x, *ys):
+    """Insert NaN where masked pixels leave a gap, so lines are not drawn across it."""
+    x = np.asarray(x, float)
+    if x.size < 3:
+        return (x, *ys)
+    step = np.diff(x)
+    cut = np.flatnonzero(step > 5 * np.median(step)) + 1
+    out = [np.insert(x, cut, np.nan)]
+    for y in ys:
+        y = np.asarray(y, float)
+        out.append(np.insert(y, cut, np.nan, axis=-1))
+    return tuple(out)
+
+
 def _label(name):
     base, _, ep = name.partition("@")
     lab = LABELS.get(base, base)
@@ -63,9 +77,9 @@ def fit_figure(panels, path, *, converged=True, title=None):
         x, d, e, dr = (np.asarray(pan[key]) for key in ("x", "data", "err", "draws"))
         med = np.median(dr, axis=0)
         if pan["kind"] == "spectrum":
-            um = x / 1e4
+            um, d, e, med, dr = gapped(x / 1e4, d, e, med, dr[: min(len(dr), 30)])
             ax.plot(um, d, color="0.2", lw=0.6, label="data")
-            for row in dr[: min(len(dr), 30)]:
+            for row in dr:
                 ax.plot(um, row, color="tab:orange", lw=0.4, alpha=0.15)
             ax.plot(um, med, color="tab:red", lw=0.8, label="posterior median model")
             ax.set_ylabel(r"$F_\lambda$ [erg s$^{-1}$ cm$^{-2}$ Å$^{-1}$]")
