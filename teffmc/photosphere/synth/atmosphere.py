@@ -26,7 +26,14 @@ Known limitations (approximate by design): no convection, no radiation pressure 
 hottest log g = -1 models are formally super-Eddington but are computed anyway), no
 sphericity, no turbulence, constant atomic partition functions, scattering as absorption.
 Near 3600 K, log g 0, V fades by ~0.21 mag for a 50 K cooling (about twice a blackbody),
-less than the ~0.4 mag quoted for published red-supergiant grids (REFERENCES.md).
+less than the ~0.4 mag quoted for published red-supergiant grids (REFERENCES.md). Measured
+cause (not Ti locked in TiO: TiO holds < 8 % of Ti anywhere in the 3650 K model, Ti is
+mostly Ti+ below log tau_R = -3, and n(TiO) rises by x1.2-2.7 per 50 K): the smeared line
+haze dominates the V-band opacity of cool models (~2.5 mag of V blanketing at 3650 K, TiO
+~0.08 mag) and is nearly temperature-insensitive, while the outer layers where TiO exists
+(T < 3000 K) cool by only 14-41 K in radiative equilibrium when Teff drops by 50 K. Removing
+the haze, TiO f x10, wider or haze/TiO-uncorrelated opacity distributions, D0(TiO) +-0.07 eV
+and tighter convergence all leave the V response at 0.16-0.235 mag.
 """
 
 from dataclasses import dataclass, field
