@@ -32,6 +32,11 @@ def gapped(x, *ys):
     return tuple(out)
 
 
+def _meta(converged):
+    """PNG text chunks: lets scripts (and tests) see the caution without reading pixels."""
+    return {"Software": "teffmc", "Description": "converged" if converged else CAUTION}
+
+
 def _label(name):
     base, _, ep = name.partition("@")
     lab = LABELS.get(base, base)
@@ -54,7 +59,7 @@ def corner_figure(samples, names, path, *, truths=None, converged=True, title=No
         head = f"{head}\n{CAUTION}" if head else CAUTION
     if head:
         fig.suptitle(head, color="black" if converged else "red", fontsize=12)
-    fig.savefig(path, dpi=90)
+    fig.savefig(path, dpi=90, metadata=_meta(converged))
     plt.close(fig)
 
 
@@ -107,5 +112,5 @@ def fit_figure(panels, path, *, converged=True, title=None):
     if head:
         fig.suptitle(head, color="black" if converged else "red")
     fig.tight_layout()
-    fig.savefig(path, dpi=90)
+    fig.savefig(path, dpi=90, metadata=_meta(converged))
     plt.close(fig)
