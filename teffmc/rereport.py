@@ -6,7 +6,6 @@ from pathlib import Path
 import numpy as np
 
 from . import posterior as post_mod
-from .errors import DataError
 from .report import corner_figure, fit_figure, write_summary
 
 __all__ = ["panels_from_posterior", "redraw"]
@@ -28,17 +27,14 @@ def panels_from_posterior(dt):
 
 def redraw(run_dir):
     """Redraw corner.png, fit.png and the summary tables of ``run_dir``."""
+    from .compare import load_run
+
     run_dir = Path(run_dir)
-    nc, sj = run_dir / "posterior.nc", run_dir / "summary.json"
-    for f in (nc, sj):
-        if not f.exists():
-            raise DataError("not a finished teffmc run folder (file missing)", file=str(f))
-    dt = post_mod.load(nc)
-    summary = json.loads(sj.read_text(encoding="utf-8"))
+    dt, summary = load_run(run_dir)
     names = json.loads(dt.attrs["sampled_names"])
     samples = np.column_stack([post_mod.draws(dt, n) for n in names])
     converged = bool(summary["converged"])
     title = dt.attrs.get("title", run_dir.name)
     corner_figure(samples, names, run_dir / "corner.png", converged=converged, title=title)
     fit_figure(panels_from_posterior(dt), run_dir / "fit.png", converged=converged, title=title)
-    write_summary(summary, sj, run_dir / "summary.ecsv")
+    write_summary(summary, run_dir / "summary.json", run_dir / "summary.ecsv")
