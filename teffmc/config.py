@@ -31,6 +31,7 @@ class SpectrumSpec:
     telluric_mask: bool = True
     calibration_order: int = -1
     calibration_sigma: float = 0.2
+    rv_kms: float = 0.0
     wave_unit: str | None = None
     flux_unit: str | None = None
 
@@ -51,6 +52,8 @@ class ModelSpec:
     scattering: bool = False
     patches: bool = False
     likelihood: str = "gaussian"
+    student_nu: float = 4.0
+    interp_error: bool = False
 
 
 @dataclass(frozen=True)
@@ -77,6 +80,7 @@ class Config:
     shared: tuple
     sampler: SamplerSpec
     distance_pc: Prior | None = None
+    parallax_mas: Prior | None = None
     hypotheses: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
 
@@ -182,6 +186,7 @@ def _spectrum(r: _Reader, base):
         telluric_mask=r.get("telluric_mask", bool, True),
         calibration_order=r.get("calibration_order", int, -1),
         calibration_sigma=r.positive("calibration_sigma", 0.2),
+        rv_kms=r.get("rv_kms", float, 0.0),
         wave_unit=r.get("wave_unit", str),
         flux_unit=r.get("flux_unit", str),
     )
@@ -246,7 +251,14 @@ def parse_config(table, path="<config>"):
         scattering=m.get("scattering", bool, False),
         patches=m.get("patches", bool, False),
         likelihood=m.choice("likelihood", ("gaussian", "student_t"), "gaussian"),
+        student_nu=m.positive("student_nu", 4.0),
+        interp_error=m.get("interp_error", bool, False),
     )
+    if model.likelihood == "student_t" and any(
+            s.get("calibration_order", -1) >= 0 for e in table.get("epoch", [])
+            if isinstance(e, dict) for s in e.get("spectra", []) if isinstance(s, dict)):
+        raise m.err("likelihood", "the Student-t likelihood cannot marginalise a calibration "
+                    "polynomial; set calibration_order = -1 or use gaussian", "student_t")
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
                     model.grain_spread_dex)
@@ -281,6 +293,13 @@ def parse_config(table, path="<config>"):
     s.done()
 
     distance = _prior(top, "distance_pc")
+    parallax = _prior(top, "parallax_mas")
+    if parallax is not None:
+        if distance is not None:
+            raise top.err("parallax_mas", "give distance_pc or parallax_mas, not both")
+        lo = parallax.support[0]
+        if lo <= 0 and parallax.kind != "normal":
+            raise top.err("parallax_mas", f"should be > 0 but the prior reaches {lo}", lo)
     hyps = []
     for i, t in enumerate(top.get("hypothesis", list, [])):
         if not isinstance(t, dict):
@@ -304,6 +323,7 @@ def parse_config(table, path="<config>"):
     top.done()
     return Config(path=path, name=name, grid=grid, epochs=tuple(epochs), model=model,
                   priors=priors, shared=shared, sampler=sampler, distance_pc=distance,
+                  parallax_mas=parallax,
                   hypotheses=tuple(hyps), raw=table)
 
 

@@ -53,6 +53,16 @@ class Posterior:
             terms = _gauss(ch.data[None, :] - model, ch.err[None, :] ** 2)
             return terms if pointwise else terms.sum(axis=1)
         var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
+        if ch.interp_frac is not None:
+            var = var + (ch.interp_frac[None, :] * model) ** 2
+        if ch.likelihood == "student_t":
+            from .observe.calibration import student_t_loglike
+
+            if not pointwise:
+                return student_t_loglike(ch.data, var, model, ch.student_nu)
+            return np.stack([student_t_loglike(ch.data[i:i + 1], var[:, i:i + 1],
+                                               model[:, i:i + 1], ch.student_nu)
+                             for i in range(ch.n_points)], axis=1)
         if ch.basis is not None:
             from .observe.calibration import marginal_loglike, calibration_mean
 

@@ -95,7 +95,8 @@ class SpectrumChannel:
     kind = "spectrum"
 
     def __init__(self, spectrum, grid, model, r_v_prior, *, resolution=None, fwhm_A=None,
-                 calibration_order=-1, calibration_sigma=0.2, name="spectrum"):
+                 calibration_order=-1, calibration_sigma=0.2, name="spectrum",
+                 interp_error=False):
         use = np.asarray(spectrum.mask, bool)
         self.name = name
         self.wave = np.asarray(spectrum.wave, float)[use]
@@ -105,6 +106,14 @@ class SpectrumChannel:
                               fwhm_A=fwhm_A)
         self.grid = full.on_pixels(self.wave) if not use.all() else full
         self.dust = Dust(self.wave, model, r_v_prior)
+        self.likelihood, self.student_nu = model.likelihood, model.student_nu
+        # fractional interpolation error per pixel (leave-one-node-out), or None
+        self.interp_frac = None
+        if interp_error and hasattr(self.grid, "log_flux"):
+            from .photosphere.interp_error import leave_one_out_error
+
+            axes = tuple(a for a in ("teff", "logg", "mh") if getattr(self.grid, a).size >= 3)
+            self.interp_frac = np.nan_to_num(leave_one_out_error(self.grid, axes=axes))
         self.calibration_order = int(calibration_order)
         self.calibration_sigma = float(calibration_sigma)
         if self.calibration_order >= 0:

@@ -72,6 +72,16 @@ def derived_quantities(prep, flat, rng):
     if cfg.distance_pc is not None:
         dist = cfg.distance_pc.sample(rng, flat.shape[0]) if not cfg.distance_pc.fixed else \
             np.full(flat.shape[0], cfg.distance_pc.value)
+    elif cfg.parallax_mas is not None:
+        # distance = 1000 / parallax [pc, mas]; the data do not constrain it, so drawing it
+        # from its prior on every draw is the exact joint posterior. Non-positive draws of
+        # a normal parallax prior are dropped by redrawing.
+        plx = (np.full(flat.shape[0], cfg.parallax_mas.value) if cfg.parallax_mas.fixed
+               else cfg.parallax_mas.sample(rng, flat.shape[0]))
+        while np.any(plx <= 0):
+            bad = plx <= 0
+            plx[bad] = cfg.parallax_mas.sample(rng, int(bad.sum()))
+        dist = 1000.0 / plx
     vband = VBand(prep.grid, cfg.model, space.prior_of("r_v"))
     out = {}
     for label in space.labels:

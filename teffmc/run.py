@@ -7,6 +7,7 @@ the sampler checkpoint for ``--resume``) and renamed to ``OUT`` when complete.
 
 import json
 import shutil
+from dataclasses import replace
 import sys
 import time
 from dataclasses import dataclass
@@ -24,6 +25,7 @@ from .parameters import ParameterSpace
 
 __all__ = ["fit", "FitResult", "prepare", "Prepared"]
 
+C_KMS = 299792.458  # speed of light [km/s], exact (SI definition)
 RUN_FILES = ("posterior.nc", "summary.json", "summary.ecsv", "run.toml", "corner.png",
              "fit.png", "log.txt")
 
@@ -69,7 +71,12 @@ def _read_spectrum(spec):
     ranges = list(spec.mask)
     if spec.wave_range is not None:
         ranges += [(0.0, spec.wave_range[0]), (spec.wave_range[1], np.inf)]
-    return apply_masks(s, ranges=ranges, telluric=spec.telluric_mask)
+    s = apply_masks(s, ranges=ranges, telluric=spec.telluric_mask)
+    if spec.rv_kms:
+        # to the star's rest frame: lambda_rest = lambda_obs / (1 + v/c), first order in
+        # v/c (|v| < 300 km/s gives < 1e-6 error); telluric masks act in the observed frame
+        s = replace(s, wave=np.asarray(s.wave) / (1.0 + spec.rv_kms / C_KMS))
+    return s
 
 
 def prepare(config, grid=None, log=print, other_models=()):
@@ -88,6 +95,7 @@ def prepare(config, grid=None, log=print, other_models=()):
             s = _read_spectrum(spec)
             chans.append(SpectrumChannel(
                 s, grid, cfg.model, r_v_prior, resolution=spec.resolution, fwhm_A=spec.fwhm_A,
+                interp_error=cfg.model.interp_error,
                 calibration_order=spec.calibration_order,
                 calibration_sigma=spec.calibration_sigma, name=f"spectrum{i + 1}"))
             log(f"epoch {ep.label}: spectrum {spec.file.name}, {chans[-1].n_points} pixels used")
