@@ -75,4 +75,5 @@ def test_parallax_gives_distance(tmp_path):
     # d = 1000 / parallax [pc]: median 500 pc for 2.0 +- 0.1 mas
     assert np.median(d["distance_pc"]) == pytest.approx(500.0, rel=0.01)
     with pytest.raises(ConfigError, match="not both"):
-        _case(tmp_path, top_extra='parallax_mas = { fixed = 2.0 }\ndistance_pc = { fixed = 500.0 }')
+        _case(tmp_path,
+              top_extra='parallax_mas = { fixed = 2.0 }\ndistance_pc = { fixed = 500.0 }')
