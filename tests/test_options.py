@@ -53,7 +53,8 @@ def test_student_t_likelihood_and_its_guard(tmp_path):
     pw = prep.log_post.pointwise(_x(prep))
     assert pw["obs.spectrum1"].shape == (1, prep.channels["obs"][0].n_points)
     with pytest.raises(ConfigError, match="Student-t"):
-        _case(tmp_path, model_extra='likelihood = "student_t"', spec_extra=", calibration_order = 1")
+        _case(tmp_path, model_extra='likelihood = "student_t"',
+              spec_extra=", calibration_order = 1")
 
 
 def test_interpolation_error_adds_variance(tmp_path):
