@@ -18,7 +18,7 @@ from threadpoolctl import threadpool_limits
 
 from . import __version__
 from .config import load_config
-from .errors import ConfigError
+from .errors import ConfigError, DataError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
 from .parameters import ParameterSpace
@@ -68,10 +68,14 @@ def _read_spectrum(spec):
 
     s = read_spectrum(spec.file, air=spec.air, wave_unit=spec.wave_unit,
                       flux_unit=spec.flux_unit)
-    ranges = list(spec.mask)
-    if spec.wave_range is not None:
-        ranges += [(0.0, spec.wave_range[0]), (spec.wave_range[1], np.inf)]
-    s = apply_masks(s, ranges=ranges, telluric=spec.telluric_mask)
+    if spec.wave_range is not None:  # cut (not mask): pixels outside may lie off the grid
+        keep = (s.wave >= spec.wave_range[0]) & (s.wave <= spec.wave_range[1])
+        if keep.sum() < 2:
+            raise ConfigError(f"keeps {int(keep.sum())} pixels of {spec.file.name}",
+                              file=str(spec.file), key="wave_range", value=spec.wave_range)
+        s = replace(s, wave=s.wave[keep], flux=s.flux[keep], err=s.err[keep],
+                    mask=s.mask[keep])
+    s = apply_masks(s, ranges=list(spec.mask), telluric=spec.telluric_mask)
     if spec.rv_kms:
         # to the star's rest frame: lambda_rest = lambda_obs / (1 + v/c), first order in
         # v/c (|v| < 300 km/s gives < 1e-6 error); telluric masks act in the observed frame
@@ -93,6 +97,12 @@ def prepare(config, grid=None, log=print, other_models=()):
         chans = []
         for i, spec in enumerate(ep.spectra):
             s = _read_spectrum(spec)
+            lo, hi = float(np.min(s.wave)), float(np.max(s.wave))
+            if lo < grid.wave[0] or hi > grid.wave[-1]:
+                raise DataError(
+                    f"wavelengths {lo:.1f}-{hi:.1f} Angstrom (vacuum) reach outside the grid's "
+                    f"{grid.wave[0]:.1f}-{grid.wave[-1]:.1f}; restrict them with wave_range",
+                    file=str(spec.file), column="wavelength", value=(lo, hi))
             chans.append(SpectrumChannel(
                 s, grid, cfg.model, r_v_prior, resolution=spec.resolution, fwhm_A=spec.fwhm_A,
                 interp_error=cfg.model.interp_error,

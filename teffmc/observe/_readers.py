@@ -196,7 +196,14 @@ def _read_fits(path, columns):
 def _read_ecsv(path, columns):
     from astropy.table import Table
 
-    table = Table.read(path, format="ascii.ecsv")
+    from astropy.io.ascii import InconsistentTableError
+
+    try:
+        table = Table.read(path, format="ascii.ecsv")
+    except (InconsistentTableError, ValueError) as exc:
+        # e.g. rows with missing values: a malformed table, said in one line
+        raise DataError(f"not a valid ECSV table ({' '.join(str(exc).split())})",
+                        file=path) from None
     chosen = _pick_columns(table.colnames, columns, path)
     raw, units = {}, {}
     for role, name in chosen.items():
