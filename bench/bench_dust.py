@@ -40,7 +40,8 @@ def main():
     print(f"ExtinctionTable.curve  ({n} x {N_PIX}): {per_call_ms(lambda: ext.curve(r_v)):.3f} ms")
     fixed = ExtinctionTable("G23", wave, r_v=3.1)
     r_fix = np.full(n, 3.1)
-    print(f"  fixed R_V curve      ({n} x {N_PIX}): {per_call_ms(lambda: fixed.curve(r_fix)):.3f} ms")
+    ms = per_call_ms(lambda: fixed.curve(r_fix))
+    print(f"  fixed R_V curve      ({n} x {N_PIX}): {ms:.3f} ms")
 
     for material in ("silicate", "corundum"):
         t0 = time.perf_counter()
@@ -49,15 +50,18 @@ def main():
         t0 = time.perf_counter()
         Veil("mie", wave, material, 0.1)
         t_cached = time.perf_counter() - t0
-        print(f"Veil(mie, {material}, 0.1 dex) build: {t_build:.1f} s cold, {t_cached:.3f} s cached")
+        print(f"Veil(mie, {material}, 0.1 dex) build: {t_build:.1f} s cold, "
+              f"{t_cached:.3f} s cached")
         tau, cover = rng.uniform(0, 2, n), rng.uniform(0, 1, n)
         radius, s = rng.uniform(0.05, 5.0, n), rng.uniform(0, 1, n)
         ms = per_call_ms(lambda v=veil, a=(tau, cover, radius, s): v.factor(*a))
         print(f"Veil.factor (scattering, {n} x {N_PIX}): {ms:.3f} ms")
     off = Veil("mie", wave, "silicate", 0.1, scattering=False)
-    print(f"Veil.factor (no scattering):       {per_call_ms(lambda: off.factor(tau, cover, radius)):.3f} ms")
+    ms = per_call_ms(lambda: off.factor(tau, cover, radius))
+    print(f"Veil.factor (no scattering):       {ms:.3f} ms")
     grey = Veil("grey", wave)
-    print(f"Veil.factor (grey):                {per_call_ms(lambda: grey.factor(tau, cover)):.3f} ms")
+    ms = per_call_ms(lambda: grey.factor(tau, cover))
+    print(f"Veil.factor (grey):                {ms:.3f} ms")
 
 
 if __name__ == "__main__":

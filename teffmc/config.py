@@ -254,11 +254,6 @@ def parse_config(table, path="<config>"):
         student_nu=m.positive("student_nu", 4.0),
         interp_error=m.get("interp_error", bool, False),
     )
-    if model.likelihood == "student_t" and any(
-            s.get("calibration_order", -1) >= 0 for e in table.get("epoch", [])
-            if isinstance(e, dict) for s in e.get("spectra", []) if isinstance(s, dict)):
-        raise m.err("likelihood", "the Student-t likelihood cannot marginalise a calibration "
-                    "polynomial; set calibration_order = -1 or use gaussian", "student_t")
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
                     model.grain_spread_dex)
@@ -312,7 +307,8 @@ def parse_config(table, path="<config>"):
         over = {}
         for k in ("veil", "grain_material", "extinction_law", "likelihood"):
             if k in t:
-                over[k] = h.choice(k, VEILS, None) if k == "veil" else h.get(k, str)
+                allowed = {"veil": VEILS, "likelihood": ("gaussian", "student_t")}.get(k)
+                over[k] = h.choice(k, allowed, None) if allowed else h.get(k, str)
         for k in ("scattering", "patches"):
             if k in t:
                 over[k] = h.get(k, bool)
@@ -320,6 +316,19 @@ def parse_config(table, path="<config>"):
         hyps.append((hname, over))
     if len({n for n, _ in hyps}) != len(hyps):
         raise top.err("hypothesis", "hypothesis names must be unique", [n for n, _ in hyps])
+    calibrated = any(s.calibration_order >= 0 for e in epochs for s in e.spectra)
+    for where, lik in [("model.likelihood", model.likelihood)] + [
+            (f"hypothesis[{i}].likelihood", o.get("likelihood")) for i, (_, o) in enumerate(hyps)]:
+        if lik == "student_t" and calibrated:
+            raise ConfigError("the Student-t likelihood cannot marginalise a calibration "
+                              "polynomial; set calibration_order = -1 or use gaussian",
+                              file=str(path), key=where, value=lik)
+    if sampler.seed < 0:
+        raise ConfigError(f"should be >= 0 but got {sampler.seed}", file=str(path),
+                          key="sampler.seed", value=sampler.seed)
+    if distance is not None and distance.support[0] <= 0 and distance.kind != "normal":
+        raise top.err("distance_pc", f"should be > 0 but the prior reaches "
+                      f"{distance.support[0]:g}", distance.support[0])
     top.done()
     return Config(path=path, name=name, grid=grid, epochs=tuple(epochs), model=model,
                   priors=priors, shared=shared, sampler=sampler, distance_pc=distance,

@@ -123,7 +123,12 @@ def run_demo(out, *, quiet=False):
     from .config import load_config
     from .run import fit_one, summary_to_text
 
-    out = Path(out)
+    from .run import check_out_folder
+
+    out = Path(out).resolve()
+    if out.exists() and (out / "data" / "ficta.toml").exists():
+        shutil.rmtree(out)  # an earlier demo
+    check_out_folder(out)
     if out.exists():
         shutil.rmtree(out)
     cfg_path = make_demo_data(out / "data")

@@ -98,8 +98,12 @@ class Posterior:
     def pointwise(self, x):
         """``{"epoch/channel": (n, n_points)}`` pointwise log-likelihood terms."""
         x = np.atleast_2d(np.asarray(x, float))
-        if not self._inside(x).all():
-            raise OffGridError({}, self.grid.bounds)
+        inside = self._inside(x)
+        if not inside.all():
+            k = int(np.argmin(inside))
+            p = self.space.epoch_values(x[k:k + 1], self.space.labels[0])
+            raise OffGridError({a: float(p[a][0]) for a in ("teff", "logg", "mh")},
+                               self.grid.bounds)
         out = {}
         for label, chans in self.channels.items():
             p = self._epoch_params(x, label)

@@ -13,7 +13,13 @@ import numpy as np
 from .errors import ConfigError
 from .priors import Prior
 
-__all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS"]
+__all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS", "POSITIVE"]
+
+#: every parameter any model variant can have
+ALL_PARAMETERS = ("teff", "logg", "mh", "theta", "a_v", "r_v", "jitter", "veil_tau",
+                  "veil_cover", "grain_radius", "veil_scatter", "patch_cover", "patch_dteff")
+#: parameters that enter only through their square or a logarithm: must stay > 0
+POSITIVE = ("theta", "jitter", "grain_radius")
 
 UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
          "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
@@ -36,13 +42,14 @@ def model_parameters(model, grid_bounds):
     grid_bounds : dict
         ``{axis: (low, high)}`` of the photosphere grid.
     """
-    t_lo, t_hi = grid_bounds["teff"]
-    g_lo, g_hi = grid_bounds["logg"]
-    m_lo, m_hi = grid_bounds["mh"]
+    def axis_prior(axis):  # a grid with one node on an axis fixes that parameter
+        lo, hi = grid_bounds[axis]
+        return Prior("uniform", low=lo, high=hi) if hi > lo else Prior("fixed", value=lo)
+
     p = {
-        "teff": Prior("uniform", low=t_lo, high=t_hi),
-        "logg": Prior("uniform", low=g_lo, high=g_hi),
-        "mh": Prior("uniform", low=m_lo, high=m_hi),
+        "teff": axis_prior("teff"),
+        "logg": axis_prior("logg"),
+        "mh": axis_prior("mh"),
         "theta": Prior("loguniform", low=1e-3, high=1e3),
         "a_v": Prior("uniform", low=0.0, high=10.0),
         "r_v": Prior("fixed", value=3.1),
@@ -79,6 +86,12 @@ class ParameterSpace:
             sibling |= set(model_parameters(m, grid_bounds))
         file = str(config.path)
         labels = [e.label for e in config.epochs]
+        multi = len(labels) > 1
+        for s in config.shared:
+            if s not in ALL_PARAMETERS:
+                raise ConfigError(f"{s!r} is not a parameter name (names: "
+                                  f"{', '.join(ALL_PARAMETERS)})",
+                                  file=file, key="shared", value=s)
         priors = dict(defaults)
         for key, prior in config.priors.items():
             base, _, label = key.partition("@")
@@ -91,7 +104,15 @@ class ParameterSpace:
             if label and label not in labels:
                 raise ConfigError(f"no epoch labelled {label!r} (epochs: {', '.join(labels)})",
                                   file=file, key=f"priors.{key}", value=key)
-            priors[key] = prior
+            if label and multi and base in config.shared:
+                raise ConfigError(f"{base} is shared by all epochs: give priors.{base}, or "
+                                  f"remove {base} from shared", file=file, key=f"priors.{key}",
+                                  value=key)
+            if base in POSITIVE and prior.support[0] <= 0:
+                raise ConfigError(f"{base} must be > 0 but the prior reaches "
+                                  f"{prior.support[0]:g}", file=file, key=f"priors.{key}",
+                                  value=prior.support[0])
+            priors[base if label and not multi else key] = prior
         for axis in ("teff", "logg", "mh"):
             for key in [k for k in priors if k.partition("@")[0] == axis]:
                 lo, hi = priors[key].support
@@ -113,12 +134,20 @@ class ParameterSpace:
                     self._slots[(label, base)] = slot
         self.base_names = list(defaults)
 
-    def prior_of(self, base):
-        """The prior of a base parameter (of the first epoch when it is per-epoch)."""
-        slot = self._slots[(self.labels[0], base)]
+    def prior_of(self, base, label=None):
+        """The prior of a base parameter in epoch ``label`` (default: the first epoch)."""
+        slot = self._slots[(label or self.labels[0], base)]
         if slot.column is None:
             return Prior("fixed", value=slot.value)
         return self.priors[slot.column]
+
+    def prior_cover(self, base):
+        """One prior whose support covers the parameter in every epoch (for tables)."""
+        ps = [self.prior_of(base, lab) for lab in self.labels]
+        if all(p.fixed for p in ps) and len({p.value for p in ps}) == 1:
+            return ps[0]
+        return Prior("uniform", low=min(p.support[0] for p in ps),
+                     high=max(p.support[1] for p in ps))
 
     def _add(self, key, base, prior):
         if prior.fixed:
@@ -157,7 +186,8 @@ class ParameterSpace:
         out = {}
         for (label, base), slot in self._slots.items():
             if slot.column is None:
-                out[base if not self.multi else f"{base}@{label}"] = slot.value
+                shared = all(self._slots[(lab, base)] is slot for lab in self.labels)
+                out[base if shared else f"{base}@{label}"] = slot.value
         return out
 
     def priors_dict(self):

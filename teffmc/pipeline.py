@@ -72,6 +72,9 @@ def derived_quantities(prep, flat, rng):
     if cfg.distance_pc is not None:
         dist = cfg.distance_pc.sample(rng, flat.shape[0]) if not cfg.distance_pc.fixed else \
             np.full(flat.shape[0], cfg.distance_pc.value)
+        while np.any(dist <= 0):  # a normal prior's unphysical tail: redraw (truncation)
+            bad = dist <= 0
+            dist[bad] = cfg.distance_pc.sample(rng, int(bad.sum()))
     elif cfg.parallax_mas is not None:
         # distance = 1000 / parallax [pc, mas]; the data do not constrain it, so drawing it
         # from its prior on every draw is the exact joint posterior. Non-positive draws of
@@ -82,7 +85,7 @@ def derived_quantities(prep, flat, rng):
             bad = plx <= 0
             plx[bad] = cfg.parallax_mas.sample(rng, int(bad.sum()))
         dist = 1000.0 / plx
-    vband = VBand(prep.grid, cfg.model, space.prior_of("r_v"))
+    vband = VBand(prep.grid, cfg.model, space.prior_cover("r_v"))
     out = {}
     for label in space.labels:
         suffix = f"@{label}" if space.multi else ""
@@ -148,6 +151,8 @@ def _predict(prep, x):
             m = ch.predict(p)
             if ch.kind == "spectrum" and ch.basis is not None:
                 var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
+                if ch.interp_frac is not None:  # the same variance as the likelihood
+                    var = var + (ch.interp_frac[None, :] * m) ** 2
                 m = m * (1.0 + calibration_mean(ch.data, var, m, ch.basis,
                                                 np.full(ch.basis.shape[0],
                                                         ch.calibration_sigma)))

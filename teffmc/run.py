@@ -91,9 +91,9 @@ def prepare(config, grid=None, log=print, other_models=()):
     cfg = config if not isinstance(config, (str, Path)) else load_config(config)
     grid = grid if grid is not None else load_grid(cfg.grid)
     space = ParameterSpace(cfg, grid.bounds, other_models=other_models)
-    r_v_prior = space.prior_of("r_v")
     channels = {}
     for ep in cfg.epochs:
+        r_v_prior = space.prior_of("r_v", ep.label)
         chans = []
         for i, spec in enumerate(ep.spectra):
             s = _read_spectrum(spec)
@@ -144,14 +144,27 @@ def fit(config, out=None, *, resume=False, quiet=False):
     models = [v.model for _, v in variants]
     results = {}
     for name, v in variants:
+        d = out / name
+        partial = d.with_name(d.name + ".partial") / "chain.h5"
+        if resume and not partial.exists() and (d / "summary.json").exists():
+            if not quiet:  # finished before the interruption: keep it
+                print(f"== hypothesis {name}: already finished", file=sys.stderr)
+            continue
         if not quiet:
             print(f"== hypothesis {name}", file=sys.stderr)
-        results[name] = fit_one(v, out / name, resume=resume, quiet=quiet, other_models=models,
-                                hypothesis=name)
+        results[name] = fit_one(v, d, resume=resume and partial.exists(), quiet=quiet,
+                                other_models=models, hypothesis=name)
     comp = compare_runs([out / name for name, _ in variants], out)
     if not quiet:
         print(comp.text, file=sys.stderr)
-    best = results[comp.rows[0]["run"]]
+    best_name = comp.rows[0]["run"]
+    if best_name in results:
+        best = results[best_name]
+    else:
+        from .compare import load_run
+
+        dt, summ = load_run(out / best_name)
+        best = FitResult(summary=summ, posterior=dt, out=out / best_name)
     best.comparison = comp
     return best
 
@@ -160,10 +173,11 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
     """Fit one model variant into the run folder ``out`` (see :func:`fit`)."""
     from .pipeline import finish_run, sample_posterior
 
+    out = Path(out).resolve()
+    check_out_folder(out)
     log = _Log(quiet)
     prep = prepare(config, log=log, other_models=other_models)
     cfg = prep.config
-    out = Path(out)
     partial = out.with_name(out.name + ".partial")
     if resume and not (partial / "chain.h5").exists():
         raise ConfigError(f"nothing to resume: {partial / 'chain.h5'} does not exist",
@@ -189,6 +203,14 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
         shutil.rmtree(out)
     partial.rename(out)
     return FitResult(summary=summary, posterior=dt, out=out)
+
+
+def check_out_folder(out):
+    """Refuse to replace a folder that is not a teffmc run (it would be deleted)."""
+    if out.exists() and any(out.iterdir()) and not (
+            (out / "summary.json").exists() or (out / "posterior.nc").exists()):
+        raise ConfigError("exists and is not a teffmc run folder; it would be replaced: "
+                          "choose another --out", key="--out", value=str(out))
 
 
 def summary_to_text(summary):

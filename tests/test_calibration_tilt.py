@@ -5,7 +5,6 @@ x in [-1, 1] (20 % from end to end), plus BVRIJHKs photometry. Fitted once with 
 2nd-order calibration polynomial (prior sigma 0.2) and once without.
 """
 
-import textwrap
 
 import pytest
 

@@ -31,7 +31,8 @@ def test_bolometric_relations_on_draws(rng):
     half = p["theta"] / 2 * np.pi / 648e6
     np.testing.assert_allclose(out["f_bol"], half**2 * SIGMA_SB * p["teff"] ** 4, rtol=1e-12)
     # at the star's own distance the flux diluted by (R/d)^2 is f_bol
-    np.testing.assert_allclose(out["luminosity"] * L_SUN_W / (4 * np.pi * (d * 3.0856775814913673e16) ** 2),
+    d_m = d * 3.0856775814913673e16  # pc in m, IAU 2015 Resolution B2
+    np.testing.assert_allclose(out["luminosity"] * L_SUN_W / (4 * np.pi * d_m**2),
                                out["f_bol"], rtol=1e-10)
 
 

@@ -205,7 +205,8 @@ def test_no_jit_and_lazy_import():
         "print(miepython.USE_JIT, os.environ['MIEPYTHON_USE_JIT'])"
     )
     env = dict(os.environ, MIEPYTHON_USE_JIT="1")
-    out = subprocess.run([sys.executable, "-c", code], check=False, env=env, capture_output=True, text=True,
+    out = subprocess.run([sys.executable, "-c", code], check=False, env=env, capture_output=True,
+                         text=True,
                          cwd=os.path.dirname(os.path.dirname(__file__)))
     assert out.returncode == 0, out.stderr
     assert out.stdout.split() == ["False", "1"]

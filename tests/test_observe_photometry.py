@@ -42,7 +42,8 @@ def test_flambda_and_fnu_flux_agree(tmp_path):
     pivot = filt.pivot_wavelength
     flam = 3.0e-12
     fnu_mjy = flam * pivot**2 / C_A_PER_S / 1e-26
-    text_l = f"# flux_unit: erg / (s cm2 Angstrom)\nband,flux,err,system\nbessell-V,{flam},{flam / 50},vega\n"
+    text_l = ("# flux_unit: erg / (s cm2 Angstrom)\nband,flux,err,system\n"
+              f"bessell-V,{flam},{flam / 50},vega\n")
     text_n = f"band,flux [mJy],err,system\nbessell-V,{fnu_mjy!r},{fnu_mjy / 50!r},vega\n"
     a = read_photometry(_write(tmp_path / "a.csv", text_l))
     b = read_photometry(_write(tmp_path / "b.csv", text_n))

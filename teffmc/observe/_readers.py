@@ -77,7 +77,8 @@ def _pick_columns(names, columns, path):
     for role in ("wave", "flux", "err"):
         if role not in chosen:
             raise DataError(
-                f"no {role} column found among {list(names)}; name it with columns={{'{role}': ...}}",
+                f"no {role} column found among {list(names)}; "
+                f"name it with columns={{'{role}': ...}}",
                 file=path,
                 column=role,
             )

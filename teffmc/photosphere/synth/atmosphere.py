@@ -19,8 +19,8 @@ by M_ODF and the atomic haze multiplied by H_ODF (sum W*M = sum W*H = 1, so the 
 opacity is the smeared one; the haze is spread more widely than the molecular bands, as
 atomic lines leave gaps); the flux is the weighted mean of the channels. The multipliers
 were chosen together with the haze amplitudes (solar colours) and checked against the
-TiO band-depth and V-sensitivity acceptance tests. The weights are our choice (idea of opacity distribution
-functions: e.g. Mihalas 1978 ch. 7 on line blanketing, from memory).
+TiO band-depth and V-sensitivity acceptance tests. The weights are our choice (idea of opacity
+distribution functions: e.g. Mihalas 1978 ch. 7 on line blanketing, from memory).
 
 Known limitations (approximate by design): no convection, no radiation pressure (so the
 hottest log g = -1 models are formally super-Eddington but are computed anyway), no
