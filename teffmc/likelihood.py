@@ -37,14 +37,19 @@ class Posterior:
     def _epoch_params(self, x, label):
         return self.space.epoch_values(x, label)
 
-    def _inside(self, x):
-        ok = np.ones(x.shape[0], bool)
-        for label in self.channels:
-            p = self._epoch_params(x, label)
-            ok &= self.grid.check_inside(p["teff"], p["logg"], p["mh"])
+    def _inside_params(self, params):
+        """Which walkers lie on the grid, given ``{label: parameter arrays}``."""
+        ok = None
+        for p in params.values():
+            inside = self.grid.check_inside(p["teff"], p["logg"], p["mh"])
             if "patch_cover" in p:
-                ok &= self.grid.check_inside(p["teff"] - p["patch_dteff"], p["logg"], p["mh"])
+                inside &= self.grid.check_inside(p["teff"] - p["patch_dteff"], p["logg"],
+                                                 p["mh"])
+            ok = inside if ok is None else ok & inside
         return ok
+
+    def _inside(self, x):
+        return self._inside_params({lab: self._epoch_params(x, lab) for lab in self.channels})
 
     def channel_loglike(self, ch, p, pointwise=False):
         """Log-likelihood of one channel, (n,) or (n, n_points) when ``pointwise``."""
@@ -81,14 +86,17 @@ class Posterior:
         x = np.atleast_2d(np.asarray(x, float))
         lp = self.space.log_prior(x)
         good = np.isfinite(lp)
-        good[good] = self._inside(x[good])
+        # the per-epoch parameter arrays are built once and used for the grid test and
+        # the likelihood alike
+        params = {lab: self._epoch_params(x[good], lab) for lab in self.channels}
+        inside = self._inside_params(params)
+        good[good] = inside
         lp[~good] = -np.inf
         if not good.any():
             return lp
-        xg = x[good]
         total = lp[good]
         for label, chans in self.channels.items():
-            p = self._epoch_params(xg, label)
+            p = {k: v[inside] for k, v in params[label].items()}
             for ch in chans:
                 total = total + self.channel_loglike(ch, p)
         total[~np.isfinite(total)] = -np.inf
