@@ -34,6 +34,7 @@ class SpectrumSpec:
     rv_kms: float = 0.0
     wave_unit: str | None = None
     flux_unit: str | None = None
+    columns: tuple = ()           # ((role, column or FITS extension name), ...)
 
 
 @dataclass(frozen=True)
@@ -175,6 +176,17 @@ def _prior(r: _Reader, k):
         raise r.err(k, str(exc), args) from None
 
 
+def _columns(r: _Reader):
+    """``columns = {wave = ..., flux = ..., err = ..., use = ..., mask = ...}``."""
+    t = r.sub("columns")
+    if t is None:
+        return ()
+    out = tuple((role, v) for role in ("wave", "flux", "err", "use", "mask")
+                if (v := t.get(role, str)) is not None)
+    t.done()
+    return out
+
+
 def _spectrum(r: _Reader, base):
     s = SpectrumSpec(
         file=r.path("file", base, required=True),
@@ -189,6 +201,7 @@ def _spectrum(r: _Reader, base):
         rv_kms=r.get("rv_kms", float, 0.0),
         wave_unit=r.get("wave_unit", str),
         flux_unit=r.get("flux_unit", str),
+        columns=_columns(r),
     )
     if s.resolution is not None and s.fwhm_A is not None:
         raise r.err("fwhm_A", "give resolution or fwhm_A, not both", s.fwhm_A)

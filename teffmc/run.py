@@ -67,7 +67,7 @@ def _read_spectrum(spec):
     from .observe import apply_masks, read_spectrum
 
     s = read_spectrum(spec.file, air=spec.air, wave_unit=spec.wave_unit,
-                      flux_unit=spec.flux_unit)
+                      flux_unit=spec.flux_unit, columns=dict(spec.columns) or None)
     if spec.wave_range is not None:  # cut (not mask): pixels outside may lie off the grid
         keep = (s.wave >= spec.wave_range[0]) & (s.wave <= spec.wave_range[1])
         if keep.sum() < 2:

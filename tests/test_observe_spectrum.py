@@ -275,3 +275,74 @@ def test_from_specutils_mask_is_inverted():
         mask=np.array([False, True, False, False]),
     )
     np.testing.assert_array_equal(from_specutils(obj).mask, [True, False, True, True])
+
+
+# Bad-pixel masks from files. Convention (astropy NDData and data-quality arrays; common
+# practice, no source): a mask/DQ value that is non-zero flags a bad pixel.
+def _wcs_header(wave):
+    hdr = fits.Header()
+    hdr.update(CTYPE1="WAVE", CRVAL1=wave[0], CDELT1=2.0, CUNIT1="Angstrom", BUNIT=FLAM)
+    return hdr
+
+
+@pytest.mark.parametrize("extname", ["MASK", "DQ", "QUALITY", "BADPIX"])
+def test_fits_mask_extension_flags_bad_pixels(tmp_path, arrays, extname):
+    wave, flux, err = arrays
+    dq = np.zeros(wave.size, np.int16)
+    dq[[3, 50, 51]] = [1, 4, 512]
+    fits.HDUList([fits.PrimaryHDU(flux, _wcs_header(wave)), fits.ImageHDU(err, name="ERR"),
+                  fits.ImageHDU(dq, name=extname)]).writeto(tmp_path / "s.fits")
+    spec = read_spectrum(tmp_path / "s.fits")
+    assert np.flatnonzero(~spec.mask).tolist() == [3, 50, 51]
+    np.testing.assert_array_equal(spec.flux, flux)   # masked, not removed or altered
+
+
+def test_fits_mask_extension_named_by_columns_and_shape_checked(tmp_path, arrays):
+    wave, flux, err = arrays
+    bad = np.zeros(wave.size, np.uint8)
+    bad[7] = 1
+    fits.HDUList([fits.PrimaryHDU(flux, _wcs_header(wave)), fits.ImageHDU(err, name="ERR"),
+                  fits.ImageHDU(bad, name="FLAGS"),
+                  fits.ImageHDU(bad[:-1], name="MASK")]).writeto(tmp_path / "s.fits")
+    spec = read_spectrum(tmp_path / "s.fits", columns={"mask": "FLAGS"})
+    assert np.flatnonzero(~spec.mask).tolist() == [7]
+    with pytest.raises(DataError, match="MASK") as info:        # default: the short MASK
+        read_spectrum(tmp_path / "s.fits")
+    assert "\n" not in str(info.value) and "599" in str(info.value)
+    with pytest.raises(DataError, match="NOPE"):
+        read_spectrum(tmp_path / "s.fits", columns={"mask": "NOPE"})
+
+
+def test_table_mask_column_combines_with_use_flag(tmp_path, arrays):
+    wave, flux, err = arrays
+    t = _table(wave, flux, err)
+    t["dq"] = np.zeros(wave.size, int)
+    t["dq"][[5, 6]] = 2
+    t["use"] = np.ones(wave.size, bool)
+    t["use"][[6, 9]] = False
+    t.write(tmp_path / "s.ecsv")
+    t.write(tmp_path / "s.fits")
+    for name in ("s.ecsv", "s.fits"):
+        spec = read_spectrum(tmp_path / name)
+        assert np.flatnonzero(~spec.mask).tolist() == [5, 6, 9], name
+
+
+def test_config_columns_reach_the_reader(tmp_path, arrays):
+    from teffmc.config import load_config
+    from teffmc.run import _read_spectrum
+
+    wave, flux, err = arrays
+    t = Table([wave * u.AA, flux * u.Unit(FLAM), err * u.Unit(FLAM),
+               np.arange(wave.size) % 97 == 0], names=("LAMBDA_VAC", "F", "SIG", "BADPIX_FLAG"))
+    t.write(tmp_path / "s.ecsv")
+    (tmp_path / "p.csv").write_text("band,mag,err,system\nbessell-V,5.0,0.02,vega\n")
+    (tmp_path / "c.toml").write_text(
+        'grid = "blackbody"\n[[epoch]]\nlabel = "a"\nphotometry = "p.csv"\n'
+        '[[epoch.spectra]]\nfile = "s.ecsv"\ntelluric_mask = false\n'
+        'columns = { wave = "LAMBDA_VAC", flux = "F", err = "SIG", mask = "BADPIX_FLAG" }\n')
+    spec = _read_spectrum(load_config(tmp_path / "c.toml").epochs[0].spectra[0])
+    assert np.flatnonzero(~spec.mask).tolist() == np.flatnonzero(t["BADPIX_FLAG"]).tolist()
+    (tmp_path / "c.toml").write_text(
+        (tmp_path / "c.toml").read_text().replace('mask = "BADPIX_FLAG"', 'bad = "X"'))
+    with pytest.raises(Exception, match="columns.bad"):
+        load_config(tmp_path / "c.toml")

@@ -1,5 +1,10 @@
 """File readers for 1-D spectra. Each returns raw columns and units as found.
 
+Bad-pixel masks: a flag column ``use``/``good`` (non-zero = use the pixel) and a mask
+column or FITS extension ``mask``/``dq``/``quality``/``badpix`` (non-zero = bad pixel, the
+astropy NDData convention and that of data-quality arrays; common practice, no source)
+are combined into ``use``.
+
 The returned dict has keys ``wave, flux, err, use`` (arrays or None),
 ``wave_unit, flux_unit, err_unit`` (str, Unit or None), ``medium``
 ("air", "vacuum" or None when the file does not say) and ``names``
@@ -30,7 +35,10 @@ _DEFAULT_NAMES = {
         "staterror",
     ),
     "use": ("use", "good"),
+    "mask": ("mask", "dq", "quality", "badpix", "bad"),
 }
+_OPTIONAL = ("use", "mask")
+_MASK_HDUS = ("MASK", "DQ", "QUALITY", "BADPIX")
 _ERR_HDUS = ("ERR", "ERROR", "SIGMA", "UNCERT", "UNCERTAINTY", "STDDEV")
 _FITS_SUFFIXES = (".fits", ".fit", ".fts", ".fits.gz", ".fit.gz")
 
@@ -52,7 +60,7 @@ def _medium_from_text(value, path, column):
 def _pick_columns(names, columns, path):
     """Map roles to column names, from ``columns`` or the default names."""
     if columns is not None and not isinstance(columns, dict):
-        columns = dict(zip(("wave", "flux", "err", "use"), columns))
+        columns = dict(zip(("wave", "flux", "err", "use", "mask"), columns))
     lower = {n.lower(): n for n in names}
     chosen = {}
     for role, defaults in _DEFAULT_NAMES.items():
@@ -70,7 +78,7 @@ def _pick_columns(names, columns, path):
             found = [lower[d] for d in defaults if d in lower]
             if found:
                 chosen[role] = found[0]
-            elif names[0] == "col1" and role != "use":
+            elif names[0] == "col1" and role not in _OPTIONAL:
                 position = ("wave", "flux", "err").index(role)
                 if position < len(names):
                     chosen[role] = names[position]
@@ -109,7 +117,25 @@ def _wcs_wavelengths(header, n, path):
     return crval + cdelt * offset
 
 
-def _read_fits_image(hdul, index, path):
+def _mask_hdu(hdul, columns, n, path):
+    """Bad-pixel array (True = bad) from a MASK/DQ/QUALITY/BADPIX extension, or None."""
+    names = [h.name.upper() for h in hdul]
+    want = (columns or {}).get("mask") if isinstance(columns, dict) else None
+    if want is not None and want.upper() not in names:
+        raise DataError(f"no extension {want!r} (extensions are {names})", file=path,
+                        column=want, value=want)
+    label = want.upper() if want is not None else next((m for m in _MASK_HDUS if m in names),
+                                                       None)
+    if label is None:
+        return None
+    data = np.asarray(hdul[names.index(label)].data)
+    if data.shape != (n,):
+        raise DataError(f"mask extension {label} has shape {data.shape} but the flux has "
+                        f"{n} pixels", file=path, column=label, value=data.shape)
+    return data != 0
+
+
+def _read_fits_image(hdul, index, path, columns=None):
     hdu = hdul[index]
     header = hdu.header
     flux = np.asarray(hdu.data, dtype=float)
@@ -145,11 +171,12 @@ def _read_fits_image(hdul, index, path):
             file=path,
             column="err",
         )
+    bad = _mask_hdu(hdul, columns, flux.size, path)
     return {
         "wave": _wcs_wavelengths(header, flux.size, path),
         "flux": flux,
         "err": err,
-        "use": None,
+        "use": None if bad is None else ~bad,
         "wave_unit": header.get("CUNIT1"),
         "flux_unit": header.get("BUNIT"),
         "err_unit": err_unit,
@@ -169,11 +196,15 @@ def _read_fits_table(hdu, path, columns):
 
 def _assemble(raw, units, chosen, medium, path):
     use = raw.get("use")
+    use = None if use is None else np.asarray(use).astype(bool)
+    if raw.get("mask") is not None:
+        good = ~np.asarray(raw["mask"]).astype(bool)
+        use = good if use is None else use & good
     return {
         "wave": np.asarray(raw["wave"], dtype=float),
         "flux": np.asarray(raw["flux"], dtype=float),
         "err": np.asarray(raw["err"], dtype=float),
-        "use": None if use is None else np.asarray(use).astype(bool),
+        "use": use,
         "wave_unit": units.get("wave"),
         "flux_unit": units.get("flux"),
         "err_unit": units.get("err"),
@@ -190,7 +221,7 @@ def _read_fits(path, columns):
             if isinstance(hdu, fits.BinTableHDU):
                 return _read_fits_table(hdu, path, columns)
             if isinstance(hdu, (fits.PrimaryHDU, fits.ImageHDU)):
-                return _read_fits_image(hdul, index, path)
+                return _read_fits_image(hdul, index, path, columns)
     raise DataError("no image or table HDU with data", file=path)
 
 
@@ -211,7 +242,7 @@ def _read_ecsv(path, columns):
         col = table[name]
         raw[role] = (
             np.ma.filled(np.ma.asarray(col, dtype=float), np.nan)
-            if role != "use"
+            if role not in _OPTIONAL
             else np.asarray(col)
         )
         units[role] = col.unit
@@ -225,7 +256,7 @@ def _read_text(path, columns):
     raw = {}
     for role, name in chosen.items():
         values = to_float(cols[name], file=path, column=name)
-        raw[role] = values != 0 if role == "use" else values
+        raw[role] = values != 0 if role in _OPTIONAL else values
     role_units = {role: units.get(name, meta.get(f"{role}_unit")) for role, name in chosen.items()}
     return _assemble(raw, role_units, chosen, meta.get("medium"), path)
 

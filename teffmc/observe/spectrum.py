@@ -178,10 +178,13 @@ def read_spectrum(path, *, air=None, wave_unit=None, flux_unit=None, columns=Non
         errors take the flux unit unless the file gives them their own.
     columns : dict or sequence, optional
         Column names for tables: ``{"wave": ..., "flux": ..., "err": ...,
-        "use": ...}`` or ``(wave, flux, err[, use])``. ``use`` is a flag
-        column, non-zero = use. Defaults: common names (wavelength/wave,
-        flux, err/error/sigma...), or the first three columns of a file
-        without a header.
+        "use": ..., "mask": ...}`` or ``(wave, flux, err[, use[, mask]])``.
+        ``use`` is a flag column, non-zero = use; ``mask`` a bad-pixel column,
+        non-zero = bad (NDData convention). For a FITS image, ``mask`` names
+        the bad-pixel extension. Defaults: common names (wavelength/wave,
+        flux, err/error/sigma..., mask/dq/quality/badpix), or the first three
+        columns of a file without a header; a FITS image's MASK, DQ, QUALITY
+        or BADPIX extension is used when present.
 
     Returns
     -------
