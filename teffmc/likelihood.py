@@ -61,13 +61,11 @@ class Posterior:
         if ch.interp_frac is not None:
             var = var + (ch.interp_frac[None, :] * model) ** 2
         if ch.likelihood == "student_t":
-            from .observe.calibration import student_t_loglike
+            from .observe.calibration import student_t_loglike, student_t_pointwise
 
             if not pointwise:
                 return student_t_loglike(ch.data, var, model, ch.student_nu)
-            return np.stack([student_t_loglike(ch.data[i:i + 1], var[:, i:i + 1],
-                                               model[:, i:i + 1], ch.student_nu)
-                             for i in range(ch.n_points)], axis=1)
+            return student_t_pointwise(ch.data, var, model, ch.student_nu)
         if ch.basis is not None:
             from .observe.calibration import marginal_loglike, calibration_mean
 
@@ -104,7 +102,13 @@ class Posterior:
         return lp
 
     def pointwise(self, x):
-        """``{"epoch/channel": (n, n_points)}`` pointwise log-likelihood terms."""
+        """``{"epoch.channel": (n, n_points)}`` pointwise log-likelihood terms.
+
+        Without a calibration polynomial the terms of all channels add up to the
+        log-likelihood that :meth:`__call__` adds to the log prior. With one, the
+        marginal likelihood does not split into pixels, and a spectrum's terms condition
+        on each draw's posterior-mean polynomial instead (used only for PSIS-LOO).
+        """
         x = np.atleast_2d(np.asarray(x, float))
         inside = self._inside(x)
         if not inside.all():

@@ -44,6 +44,7 @@ __all__ = [
     "marginal_loglike",
     "posterior_calibration",
     "student_t_loglike",
+    "student_t_pointwise",
 ]
 
 _LOG_2PI = np.log(2.0 * np.pi)
@@ -184,6 +185,17 @@ def calibration_mean(data, var, model, design, prior_sigma):
     return posterior_calibration(data, var, model, design, prior_sigma).poly - 1.0
 
 
+def _check_nu(nu):
+    if not (np.isfinite(nu) and nu > 0):
+        raise ConfigError(f"should be finite and > 0 but got {nu}", key="student_nu", value=nu)
+
+
+def _student_t_terms(r, s2, nu):
+    """Per-pixel Student-t log density of residuals ``r`` with squared scale ``s2``."""
+    const = gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu) - 0.5 * np.log(nu * np.pi)
+    return const - 0.5 * np.log(s2) - 0.5 * (nu + 1.0) * np.log1p(r * r / (nu * s2))
+
+
 def student_t_loglike(data, var, model, nu):
     """Student-t log-likelihood, robust against outlying pixels.
 
@@ -209,11 +221,38 @@ def student_t_loglike(data, var, model, nu):
     Returns
     -------
     ndarray, shape (n_walkers,)
+        The sum over pixels of :func:`student_t_pointwise`.
     """
-    if not (np.isfinite(nu) and nu > 0):
-        raise ConfigError(f"should be finite and > 0 but got {nu}", key="student_nu", value=nu)
+    _check_nu(nu)
     s2 = np.asarray(var, dtype=float)
     r = np.asarray(data, dtype=float) - np.asarray(model, dtype=float)
-    const = gammaln(0.5 * (nu + 1.0)) - gammaln(0.5 * nu) - 0.5 * np.log(nu * np.pi)
-    per_pix = const - 0.5 * np.log(s2) - 0.5 * (nu + 1.0) * np.log1p(r * r / (nu * s2))
+    per_pix = _student_t_terms(r, s2, nu)
     return np.sum(np.broadcast_to(per_pix, np.broadcast_shapes(r.shape, s2.shape)), axis=-1)
+
+
+def student_t_pointwise(data, var, model, nu, max_elements=1 << 20):
+    """Per-pixel terms of :func:`student_t_loglike` (same arguments), for PSIS-LOO.
+
+    Vectorised over walkers and pixels at once; the walkers are taken in blocks of
+    at most ``max_elements`` array elements so the temporaries stay bounded
+    (~8 MB each by default) however many draws are passed. The terms of a walker
+    sum to its :func:`student_t_loglike`.
+
+    Returns
+    -------
+    ndarray, shape ``broadcast(data, var, model)``: (n_walkers, n_pix), or (n_pix,)
+    """
+    _check_nu(nu)
+    data = np.asarray(data, dtype=float)
+    s2 = np.asarray(var, dtype=float)
+    model = np.asarray(model, dtype=float)
+    shape = np.broadcast_shapes(data.shape, s2.shape, model.shape)
+    if len(shape) < 2:
+        return np.broadcast_to(_student_t_terms(data - model, s2, nu), shape).copy()
+    d2, s2, m2 = (np.broadcast_to(a, shape).reshape(-1, shape[-1]) for a in (data, s2, model))
+    out = np.empty(d2.shape)
+    step = max(1, int(max_elements) // max(1, shape[-1]))
+    for i in range(0, out.shape[0], step):
+        blk = slice(i, i + step)
+        out[blk] = _student_t_terms(d2[blk] - m2[blk], s2[blk], nu)
+    return out.reshape(shape)
