@@ -20,7 +20,7 @@ import numpy as np
 from . import posterior as post_mod
 from .errors import DataError
 
-__all__ = ["compare_runs", "Comparison", "load_run"]
+__all__ = ["compare_runs", "Comparison"]
 
 K_WARN = 0.7  # Vehtari et al. 2017/2024: k above 0.7 makes the PSIS estimate unreliable
 
@@ -32,20 +32,11 @@ class Comparison:
     out: Path | None
 
 
-def load_run(run_dir):
-    run_dir = Path(run_dir)
-    nc, sj = run_dir / "posterior.nc", run_dir / "summary.json"
-    for f in (nc, sj):
-        if not f.exists():
-            raise DataError("not a finished teffmc run folder (file missing)", file=str(f))
-    return post_mod.load(nc), json.loads(sj.read_text(encoding="utf-8"))
-
-
 def compare_runs(run_dirs, out=None):
     """Compare hypotheses; write compare.json, compare.ecsv, compare.png into ``out``."""
     if len(run_dirs) < 2:
         raise DataError("compare needs at least two run folders", file=str(run_dirs[0]))
-    runs = [(Path(d), *load_run(d)) for d in run_dirs]
+    runs = [(Path(d), *post_mod.load_run(d)) for d in run_dirs]
     labels = [s.get("hypothesis") or d.name for d, _, s in runs]
     if len(set(labels)) != len(labels):
         raise DataError(f"two runs have the same name ({', '.join(labels)}); rename a folder",

@@ -11,10 +11,13 @@ grid checksum and the convergence verdict.
 
 import json
 import warnings
+from pathlib import Path
 
 import numpy as np
 
-__all__ = ["build", "save", "load", "summarise", "draws", "loo"]
+from .errors import DataError
+
+__all__ = ["build", "save", "load", "load_run", "summarise", "draws", "loo"]
 
 
 def _to_chain_draw(a):
@@ -76,6 +79,16 @@ def load(path):
     import arviz as az
 
     return az.from_netcdf(str(path), engine="h5netcdf")
+
+
+def load_run(run_dir):
+    """A finished run folder's (DataTree from posterior.nc, dict from summary.json)."""
+    run_dir = Path(run_dir)
+    nc, sj = run_dir / "posterior.nc", run_dir / "summary.json"
+    for f in (nc, sj):
+        if not f.exists():
+            raise DataError("not a finished teffmc run folder (file missing)", file=str(f))
+    return load(nc), json.loads(sj.read_text(encoding="utf-8"))
 
 
 def draws(dt, name, group="posterior"):

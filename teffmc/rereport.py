@@ -27,10 +27,8 @@ def panels_from_posterior(dt):
 
 def redraw(run_dir):
     """Redraw corner.png, fit.png and the summary tables of ``run_dir``."""
-    from .compare import load_run
-
     run_dir = Path(run_dir)
-    dt, summary = load_run(run_dir)
+    dt, summary = post_mod.load_run(run_dir)
     names = json.loads(dt.attrs["sampled_names"])
     samples = np.column_stack([post_mod.draws(dt, n) for n in names])
     converged = bool(summary["converged"])

@@ -161,7 +161,7 @@ def fit(config, out=None, *, resume=False, quiet=False):
     if best_name in results:
         best = results[best_name]
     else:
-        from .compare import load_run
+        from .posterior import load_run
 
         dt, summ = load_run(out / best_name)
         best = FitResult(summary=summ, posterior=dt, out=out / best_name)
