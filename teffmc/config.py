@@ -51,6 +51,7 @@ class ModelSpec:
     grain_material: str = "silicate"
     grain_spread_dex: float = 0.1
     scattering: bool = False
+    scatter_cone_deg: float = 90.0
     patches: bool = False
     likelihood: str = "gaussian"
     student_nu: float = 4.0
@@ -262,11 +263,15 @@ def parse_config(table, path="<config>"):
         grain_material=m.get("grain_material", str, "silicate"),
         grain_spread_dex=m.get("grain_spread_dex", float, 0.1),
         scattering=m.get("scattering", bool, False),
+        scatter_cone_deg=m.positive("scatter_cone_deg", 90.0),
         patches=m.get("patches", bool, False),
         likelihood=m.choice("likelihood", ("gaussian", "student_t"), "gaussian"),
         student_nu=m.positive("student_nu", 4.0),
         interp_error=m.get("interp_error", bool, False),
     )
+    if model.scatter_cone_deg > 90.0:
+        raise m.err("scatter_cone_deg", f"should be in (0, 90] but got "
+                    f"{model.scatter_cone_deg}", model.scatter_cone_deg)
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
                     model.grain_spread_dex)

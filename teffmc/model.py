@@ -54,7 +54,8 @@ class Dust:
         self.veil = None
         if model.veil != "none":
             self.veil = Veil(model.veil, wave, material=model.grain_material,
-                             spread_dex=model.grain_spread_dex, scattering=model.scattering)
+                             spread_dex=model.grain_spread_dex, scattering=model.scattering,
+                             scatter_cone_deg=model.scatter_cone_deg)
 
     def factor(self, p):
         """Multiplicative dust factor (n, n_pix)."""

@@ -101,3 +101,15 @@ def test_out_folder_that_is_not_a_run_is_not_deleted(tmp_path, capsys):
 def test_more_refused_values(tmp_path, body, key):
     with pytest.raises(ConfigError, match=key.split(".")[-1]):
         _cfg(tmp_path, body)
+
+
+def test_scatter_cone_reaches_the_veil_and_is_bounded(tmp_path):
+    from teffmc.model import Dust
+    from teffmc.priors import Prior
+
+    cfg = _cfg(tmp_path, '[model]\nveil = "mie"\nscattering = true\nscatter_cone_deg = 12.5\n')
+    assert cfg.model.scatter_cone_deg == 12.5
+    dust = Dust(np.array([4000.0, 8000.0]), cfg.model, Prior("fixed", value=3.1))
+    assert dust.veil.scatter_cone_deg == 12.5 and dust.veil.table.cone_deg == 12.5
+    with pytest.raises(ConfigError, match="scatter_cone_deg"):
+        _cfg(tmp_path, '[model]\nveil = "mie"\nscatter_cone_deg = 120.0\n')

@@ -185,3 +185,108 @@ def test_kind_validation():
         Veil("fog", WAVE)
     with pytest.raises(ConfigError, match="grey veil has no scattering"):
         Veil("grey", WAVE, scattering=True)
+
+
+# --- Forward cone of a compact screen (scatter_cone_deg < 90) --------------------------
+
+@pytest.mark.parametrize("cone", [5.0, 10.0, 45.0, 90.0, 180.0])
+def test_cone_fraction_rayleigh_limit(cone):
+    # Rayleigh phase function (1 + cos^2 theta) 3 / (16 pi) (Bohren & Huffman 1983, ch. 5,
+    # from memory): P(theta_c) = 3/8 [(1 - mu_c) + (1 - mu_c^3) / 3]
+    from teffmc.dust.mie import cone_fraction
+
+    mu = np.cos(np.radians(cone))
+    want = 3.0 / 8.0 * ((1.0 - mu) + (1.0 - mu**3) / 3.0)
+    assert cone_fraction(1.5 - 0.01j, 1e-3, cone)[0] == pytest.approx(want, rel=1e-4)
+
+
+@pytest.mark.parametrize("x", [100.0, 300.0])
+@pytest.mark.parametrize("cone", [0.5, 1.0, 2.0])
+def test_cone_fraction_large_sphere_is_airy_diffraction(x, cone):
+    # A large opaque sphere diffracts like a disc of its radius (Babinet): the diffracted
+    # power within theta is Rayleigh's encircled-energy formula 1 - J0^2(x th) - J1^2(x th)
+    # (Born & Wolf, Principles of Optics, sec. 8.5.2, from memory) in units of the
+    # geometric cross-section. Q_sca P adds the little grazing reflection (< 0.05).
+    from scipy.special import j0, j1
+
+    from teffmc.dust.mie import cone_fraction, efficiencies
+
+    m = 1.5 - 1.0j  # strongly absorbing: no light through the sphere
+    q_sca = efficiencies(m, x)[1]
+    z = x * np.radians(cone)
+    airy = 1.0 - j0(z) ** 2 - j1(z) ** 2
+    got = q_sca * cone_fraction(m, x, cone)[0]
+    assert 0.0 <= got - airy < 0.05
+
+
+def test_cone_fraction_whole_sphere_and_errors():
+    from teffmc.dust.mie import cone_fraction
+
+    np.testing.assert_allclose(cone_fraction(1.7 - 0.03j, [0.5, 5.0, 50.0], 180.0), 1.0,
+                               rtol=1e-6)
+    for bad in (0.0, -3.0, 181.0, np.nan):
+        with pytest.raises(ConfigError, match="cone"):
+            cone_fraction(1.7 - 0.03j, 1.0, bad)
+
+
+def test_hemisphere_henyey_greenstein_is_close_to_mie():
+    # The default (theta_c = 90 deg) uses the Henyey-Greenstein hemisphere fraction; its
+    # error against the Mie phase function stays small for these grains (our claim in
+    # teffmc.dust.veil, checked here).
+    from teffmc.dust.mie import cone_fraction, efficiencies
+
+    x = 2 * np.pi * np.array([0.3, 0.5, 1.0]) / np.array([[0.4], [0.8]])
+    g = efficiencies(1.7 - 0.03j, x)[2]
+    np.testing.assert_allclose(cone_fraction(1.7 - 0.03j, x.ravel(), 90.0),
+                               forward_fraction(g).ravel(), atol=0.025)
+
+
+def test_cone_table_matches_direct_size_average():
+    # the table (coarse cone grid interpolated onto the fine x grid, size-averaged) vs
+    # a direct size average of Q_sca P at each wavelength
+    from teffmc.dust.materials import get_material
+    from teffmc.dust.mie import cone_fraction, efficiencies
+    from teffmc.dust.mietable import MieTable
+
+    wave = np.array([4000.0, 5500.0, 8000.0])
+    table = MieTable("silicate", wave, 0.1, (0.3, 1.0), n_radius=3, cone_deg=10.0)
+    m = get_material("silicate").refractive_index(wave)
+    sig = 0.1 * np.log(10.0)
+    u = np.linspace(-5 * sig, 5 * sig, 401)
+    for i, a in enumerate(table.radius):
+        w = np.exp(-0.5 * (u / sig) ** 2 + 2 * u)
+        for j, lam in enumerate(wave * 1e-4):
+            x = 2 * np.pi * a * np.exp(u) / lam
+            q_sca = efficiencies(m[j], x)[1]
+            direct = np.sum(w * q_sca * cone_fraction(m[j], x, 10.0)) / np.sum(w)
+            assert table.table_q_cone[i, j] == pytest.approx(direct, rel=0.02)
+
+
+@pytest.fixture(scope="module")
+def compact(tmp_path_factory):
+    wave = np.array([4000.0, 8000.0])
+    return {on: _module_veil(tmp_path_factory, "mie", wave, "silicate", 0.1, scattering=on,
+                             radius_range=(0.1, 2.0), scatter_cone_deg=10.0)
+            for on in (True, False)}
+
+
+@pytest.mark.parametrize("radius", [0.3, 0.5, 0.7, 1.0])
+def test_compact_screen_scattering_leaves_blue_end_brighter(compact, on_off, radius):
+    # Issue criterion: with scattering on, a veil of 0.3-1 micron grains leaves 0.4 micron
+    # brighter relative to 0.8 micron than the same veil without scattering. Holds for a
+    # compact screen (theta_c = 10 deg: the forward diffraction lobe, narrower and taller
+    # in the blue) and not for a screen hugging the star (hemisphere), where these grains
+    # return redder light (see teffmc.dust.veil).
+    def blue_over_red(veil, s):
+        f = veil.factor([1.0], [0.8], [radius], s)[0]
+        return f[0] / f[1]
+
+    bare = blue_over_red(compact[False], None)
+    assert blue_over_red(compact[True], [1.0]) > 1.01 * bare
+    assert blue_over_red(on_off["silicate", True], [1.0]) < bare   # hemisphere: redder
+
+
+def test_scatter_cone_deg_is_validated():
+    for bad in (0.0, 95.0, np.inf):
+        with pytest.raises(ConfigError, match="scatter_cone_deg"):
+            Veil("mie", WAVE, "silicate", 0.1, radius_range=(0.1, 2.0), scatter_cone_deg=bad)

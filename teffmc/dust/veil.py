@@ -10,34 +10,52 @@ disc is seen directly. The star is unresolved, so the observer receives the sum:
 
 Inside the screen, each extinction event removes a photon from the beam. With
 probability omega (single-scattering albedo, Q_sca / Q_ext) it is scattered rather
-than absorbed; a scattered photon goes into the forward hemisphere with probability
-F(g) (below); and a fraction ``s = veil_scatter`` of those still reaches the observer
-(geometry: s -> 1 for a screen hugging the photosphere, whose forward lobe we see
-whole; s -> 0 for a small clump far out, whose scattered light misses us). A photon
-returned to the beam keeps travelling outwards through the rest of the screen and
-meets the same odds again, i.e. it is treated as undeviated -- the small-angle
-(similarity, delta-scaling) approximation for forward-peaked phase functions
-(Joseph, Wiscombe & Weinman 1976, J. Atmos. Sci. 33, 2452; from memory). The beam
-then obeys dI / dtau = -(1 - s omega F) I, so::
+than absorbed. Which scattered photons reach the observer depends on where the screen
+is. Starlight scattered by a screen element at projected distance r from the line of
+sight, the screen lying a distance d from the star, reaches us after turning through
+theta ~ atan(r / d); for an unresolved star, optically thin screen the light returned
+per photon removed from the disc's beam is therefore omega P(theta_c), with P(theta_c)
+the fraction of the phase function within the half-angle theta_c = atan(R_screen / d)
+that the screen subtends at the star (``scatter_cone_deg``). A screen hugging the
+photosphere has theta_c -> 90 degrees: its whole forward hemisphere reaches us. A
+compact screen further out (theta_c of a few degrees) returns only the forward
+diffraction lobe, which is narrower and taller at short wavelengths (width ~ 1/x), so
+it returns relatively more blue light. A fraction ``s = veil_scatter`` in [0, 1] of
+that light still reaches the observer (holes, clumping, the part of the screen off the
+line of sight that is not illuminated). A photon returned to the beam keeps travelling
+outwards through the rest of the screen and meets the same odds again, i.e. it is
+treated as undeviated -- the small-angle (similarity, delta-scaling) approximation for
+forward-peaked phase functions (Joseph, Wiscombe & Weinman 1976, J. Atmos. Sci. 33,
+2452; from memory). The beam then obeys dI / dtau = -(1 - s omega P) I, so::
 
-    T(lambda) = exp(-tau(lambda) [1 - s omega(lambda) F(g(lambda))]).
+    T(lambda) = exp(-tau(lambda) [1 - s omega(lambda) P(lambda)]).
 
 To first order in tau this equals the single-scattering sum
-exp(-tau) + s omega F (1 - exp(-tau)); unlike that sum it does not keep a floor
-s omega F for an opaque screen. F is the forward-hemisphere fraction of the
-Henyey & Greenstein 1941 (ApJ 93, 70) phase function with the Mie asymmetry g::
+exp(-tau) + s omega P (1 - exp(-tau)); unlike that sum it does not keep a floor
+s omega P for an opaque screen. For theta_c = 90 degrees P is the forward-hemisphere
+fraction of the Henyey & Greenstein 1941 (ApJ 93, 70) phase function with the Mie
+asymmetry g::
 
     F(g) = (1 + g) / (2 g) [1 - (1 - g) / sqrt(1 + g^2)],   F(0) = 1/2, F(1) = 1,
 
-which is steeper in g than the two-stream value (1 + g) / 2 (F ~ 1/2 + 3g/4).
-Large grains scatter more and more forward at short wavelengths, so scattering gives
-back relatively more blue light: the observed spectrum can come out bluer than a
-reddened photosphere.
+which is steeper in g than the two-stream value (1 + g) / 2 (F ~ 1/2 + 3g/4) and agrees
+with the Mie phase function's hemisphere fraction to ~0.02 for silicate grains of
+0.3-1 micron (measured). For narrower cones Henyey-Greenstein misses the diffraction
+peak, so P(theta_c) is integrated from the Mie phase function
+(:func:`teffmc.dust.mie.cone_fraction`) and size-averaged with Q_sca weights.
+
+Colour of the returned light (measured, silicate, 0.1 dex spread, tests/test_dust_veil.py):
+with the hemisphere, grains of 0.3-1 micron return relatively *redder* light, because
+their scattering optical depth is larger at 0.8 than at 0.4 micron (the first Mie
+extinction peak) and the albedo is lower in the blue; only grains <~ 0.2 micron return
+bluer light. With a compact screen (theta_c <~ 15 degrees) the diffraction lobe wins and
+0.3-1 micron grains return bluer light too.
 
 Assumptions: single spheres (Mie) of one material; thermal emission of the dust
 neglected (cool dust emits little below ~1 micron); no change of wavelength on
-scattering; back-scattered light is lost (it returns to the star or leaves sideways);
-light scattered into the line of sight by dust off the disc is lumped into ``s``.
+scattering; light scattered outside the cone is lost (it returns to the star or leaves
+sideways); single scattering sets the cone (multiple scattering is in the similarity
+approximation above).
 A grey veil has tau independent of wavelength and no scattering term (a constant
 scattering gain would only rescale ``veil_tau``).
 """
@@ -107,6 +125,12 @@ class Veil:
         averages out the Mie ripples.
     scattering : bool, optional
         Return forward-scattered light to the beam (Mie only; default True for Mie).
+    scatter_cone_deg : float
+        Half-angle theta_c [degree] of the cone of scattering angles whose light
+        reaches the observer (see the module docstring): 90 (default) for a screen
+        hugging the photosphere, uses the Henyey-Greenstein hemisphere fraction F(g);
+        smaller values, for a compact screen further out, use the Mie phase function
+        tabulated by :class:`MieTable` (slower to tabulate once, cached).
     radius_range : tuple of float
         Tabulated grain radii [micron] (Mie only).
     n_radius : int, optional
@@ -121,7 +145,8 @@ class Veil:
     """
 
     def __init__(self, kind, wave, material="silicate", spread_dex=0.1, scattering=None,
-                 radius_range=(0.01, 10.0), n_radius=None, use_cache=True):
+                 radius_range=(0.01, 10.0), n_radius=None, use_cache=True,
+                 scatter_cone_deg=90.0):
         if kind not in VEIL_KINDS:
             raise ConfigError(f"unknown veil kind {kind!r}; allowed: {', '.join(VEIL_KINDS)}",
                               key="veil", value=kind)
@@ -134,16 +159,27 @@ class Veil:
             self.scattering = False
             return
         self.scattering = True if scattering is None else bool(scattering)
+        cone = float(scatter_cone_deg)
+        if not (np.isfinite(cone) and 0.0 < cone <= 90.0):
+            raise ConfigError(f"scatter_cone_deg should be in (0, 90] but got {cone}",
+                              key="scatter_cone_deg", value=scatter_cone_deg)
+        self.scatter_cone_deg = cone
         wave_all = np.union1d(self.wave, [V_WAVE])
         pix = np.searchsorted(wave_all, self.wave)
         ref = int(np.searchsorted(wave_all, V_WAVE))
-        table = MieTable(material, wave_all, spread_dex, radius_range, n_radius, use_cache)
+        narrow = self.scattering and cone < 90.0
+        table = MieTable(material, wave_all, spread_dex, radius_range, n_radius, use_cache,
+                         cone_deg=cone if narrow else None)
         self.table = table
         self._ln_r = np.log(table.radius)
         q = table.table_q_ext
         self._q_rel = RowInterpolator(self._ln_r, q[:, pix] / q[:, ref:ref + 1])
-        albedo = table.table_q_sca[:, pix] / q[:, pix]
-        self._wf = RowInterpolator(self._ln_r, albedo * forward_fraction(table.table_g[:, pix]))
+        if narrow:        # omega P(theta_c) = <Q_sca P> / <Q_ext>
+            returned = table.table_q_cone[:, pix] / q[:, pix]
+        else:             # omega F(g), Henyey-Greenstein forward hemisphere
+            returned = table.table_q_sca[:, pix] / q[:, pix] * forward_fraction(
+                table.table_g[:, pix])
+        self._wf = RowInterpolator(self._ln_r, returned)
         self._work = None
 
     def optical_depth(self, veil_tau, grain_radius=None):
