@@ -18,9 +18,11 @@ _API = {
     "extinction_curve": "teffmc.dust",
     "grain_optics": "teffmc.dust",
     "fit": "teffmc.run",
+    "fit_many": "teffmc.batch",
 }
 
-__all__ = ["__version__", "load_grid", "synth_mag", "extinction_curve", "grain_optics", "fit"]
+__all__ = ["__version__", "load_grid", "synth_mag", "extinction_curve", "grain_optics", "fit",
+           "fit_many"]
 
 
 def __getattr__(name):

@@ -1,7 +1,7 @@
-"""Command line: ``teffmc demo | fit | compare | report | grid``.
+"""Command line: ``teffmc demo | fit | batch | compare | report | grid``.
 
 Exit codes: 0 success; 2 bad input (one line naming file, key or column, and the
-value; no traceback); 1 internal error.
+value; no traceback); 1 internal error, or for ``batch``: at least one star failed.
 """
 
 import argparse
@@ -21,6 +21,29 @@ def _cmd_fit(args):
     print(summary_to_text(res.summary))
     print(f"run folder: {res.out}")
     return 0
+
+
+def _cmd_batch(args):
+    import signal
+    import threading
+
+    from .batch import fit_many, read_config_list
+
+    def stop(signum, frame):  # a job scheduler's SIGTERM: stop the workers, keep the table
+        raise SystemExit(128 + signum)
+
+    configs = [Path(c) for c in args.configs]
+    for lst in args.list or []:
+        configs += read_config_list(lst)
+    main_thread = threading.current_thread() is threading.main_thread()
+    old = signal.signal(signal.SIGTERM, stop) if main_thread else None
+    try:
+        table = fit_many(configs, args.out, workers=args.workers, redo=args.redo,
+                         quiet=args.quiet)
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGTERM, old)
+    return 1 if any(s == "failed" for s in table["status"]) else 0
 
 
 def _cmd_demo(args):
@@ -85,6 +108,33 @@ def build_parser():
     f.add_argument("--resume", action="store_true", help="continue an interrupted run")
     f.add_argument("--quiet", action="store_true", help="no progress bar or log lines")
     f.set_defaults(func=_cmd_fit)
+
+    b = sub.add_parser(
+        "batch", help="fit many stars, one config each, into OUT/<config stem>/",
+        description="Fit many stars (one config file each) in a pool of processes, each "
+        "star into OUT/<config file stem>/, with one table OUT/batch.ecsv (a row per star: "
+        "status, reason, wall time, steps, median and 16th/84th percentiles of every "
+        "parameter) and the progress lines in OUT/batch.log. Stars whose folder already "
+        "holds a finished run are skipped, so re-running the same command resumes an "
+        "interrupted batch.",
+        epilog="exit status: 0 every star has a finished run (rows with status "
+        "not_converged are runs that did not converge: see their caution); 1 at least one "
+        "star failed (status failed, the reason in the table and the log; the other stars "
+        "were fitted); 2 bad batch input (no configs, two configs with the same file stem, "
+        "unreadable --list file), nothing done; 130 interrupted (re-run the same command to "
+        "resume).")
+    b.add_argument("configs", nargs="*", metavar="CONFIG", help="TOML config files")
+    b.add_argument("--list", action="append", metavar="FILE",
+                   help="text file with one config path a line (relative paths: from the "
+                   "file's folder); may be repeated")
+    b.add_argument("--out", required=True, help="folder for the runs and batch.ecsv")
+    b.add_argument("--workers", type=int, default=1,
+                   help="stars fitted at the same time, one process and one BLAS thread "
+                   "each (default: %(default)s)")
+    b.add_argument("--redo", action="store_true",
+                   help="fit again stars whose folder holds a finished run")
+    b.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    b.set_defaults(func=_cmd_batch)
 
     c = sub.add_parser("compare", help="compare hypotheses fitted to the same data")
     c.add_argument("run_dirs", nargs="+", help="run folders written by `teffmc fit`")
