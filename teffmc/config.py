@@ -177,6 +177,14 @@ def _prior(r: _Reader, k):
         raise r.err(k, str(exc), args) from None
 
 
+def _cone_deg(r: _Reader, default):
+    """Half-angle of the veil's forward cone [degree], in (0, 90]."""
+    v = r.positive("scatter_cone_deg", default)
+    if v is not None and v > 90.0:
+        raise r.err("scatter_cone_deg", f"should be in (0, 90] but got {v}", v)
+    return v
+
+
 def _columns(r: _Reader):
     """``columns = {wave = ..., flux = ..., err = ..., use = ..., mask = ...}``."""
     t = r.sub("columns")
@@ -263,15 +271,12 @@ def parse_config(table, path="<config>"):
         grain_material=m.get("grain_material", str, "silicate"),
         grain_spread_dex=m.get("grain_spread_dex", float, 0.1),
         scattering=m.get("scattering", bool, False),
-        scatter_cone_deg=m.positive("scatter_cone_deg", 90.0),
+        scatter_cone_deg=_cone_deg(m, 90.0),
         patches=m.get("patches", bool, False),
         likelihood=m.choice("likelihood", ("gaussian", "student_t"), "gaussian"),
         student_nu=m.positive("student_nu", 4.0),
         interp_error=m.get("interp_error", bool, False),
     )
-    if model.scatter_cone_deg > 90.0:
-        raise m.err("scatter_cone_deg", f"should be in (0, 90] but got "
-                    f"{model.scatter_cone_deg}", model.scatter_cone_deg)
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
                     model.grain_spread_dex)
@@ -330,6 +335,8 @@ def parse_config(table, path="<config>"):
         for k in ("scattering", "patches"):
             if k in t:
                 over[k] = h.get(k, bool)
+        if "scatter_cone_deg" in t:
+            over["scatter_cone_deg"] = _cone_deg(h, None)
         h.done()
         hyps.append((hname, over))
     if len({n for n, _ in hyps}) != len(hyps):

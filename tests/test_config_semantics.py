@@ -113,3 +113,13 @@ def test_scatter_cone_reaches_the_veil_and_is_bounded(tmp_path):
     assert dust.veil.scatter_cone_deg == 12.5 and dust.veil.table.cone_deg == 12.5
     with pytest.raises(ConfigError, match="scatter_cone_deg"):
         _cfg(tmp_path, '[model]\nveil = "mie"\nscatter_cone_deg = 120.0\n')
+
+
+def test_hypothesis_may_set_its_own_scatter_cone(tmp_path):
+    cfg = _cfg(tmp_path, '[model]\nveil = "mie"\nscattering = true\n'
+                         '[[hypothesis]]\nname = "hugging"\n'
+                         '[[hypothesis]]\nname = "clump"\nscatter_cone_deg = 10.0\n')
+    cones = {name: c.model.scatter_cone_deg for name, c in cfg.variants()}
+    assert cones == {"hugging": 90.0, "clump": 10.0}
+    with pytest.raises(ConfigError, match=r"hypothesis\[0\]\.scatter_cone_deg"):
+        _cfg(tmp_path, '[[hypothesis]]\nname = "x"\nscatter_cone_deg = 91.0\n')
