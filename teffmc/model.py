@@ -27,6 +27,9 @@ PHOT_PIXEL_R = 1000.0  # lambda/dlambda of the pixels used for synthetic photome
 PHOT_SMOOTH_R = 500.0  # resolving power the grid is smoothed to before that sampling
 
 
+_LN10 = np.log(10.0)
+
+
 def surface_flux(grid, p):
     """Surface flux (n, n_pix) of the photosphere for parameter arrays ``p``.
 
@@ -57,21 +60,38 @@ class Dust:
                              spread_dex=model.grain_spread_dex, scattering=model.scattering,
                              scatter_cone_deg=model.scatter_cone_deg)
 
-    def factor(self, p):
-        """Multiplicative dust factor (n, n_pix)."""
-        out = 10.0 ** (-0.4 * p["a_v"][:, None] * self.ext.curve(p["r_v"]))
-        if self.veil is not None:
-            n = p["a_v"].shape[0]
-            out = out * self.veil.factor(p["veil_tau"], p["veil_cover"],
-                                         p.get("grain_radius", np.ones(n)),
-                                         p.get("veil_scatter", np.zeros(n)))
-        return out
+    def log10_extinction(self, p):
+        """log10 of the interstellar transmission, -0.4 A_lambda, shape (n, n_pix)."""
+        return -0.4 * p["a_v"][:, None] * self.ext.curve(p["r_v"])
+
+    def veil_factor(self, p):
+        """Transmission of the circumstellar veil (n, n_pix), or None without a veil."""
+        if self.veil is None:
+            return None
+        n = p["a_v"].shape[0]
+        return self.veil.factor(p["veil_tau"], p["veil_cover"], p.get("grain_radius", np.ones(n)),
+                                p.get("veil_scatter", np.zeros(n)))
 
 
 def observed_flux(grid, dust, p):
-    """Model flux at Earth (n, n_pix) [erg s^-1 cm^-2 Angstrom^-1]."""
+    """Model flux at Earth (n, n_pix) [erg s^-1 cm^-2 Angstrom^-1].
+
+    (theta/2)^2 x surface flux x interstellar transmission are summed in log10 and
+    exponentiated once (one exp per pixel instead of two powers and two products).
+    """
     scale = (0.5 * p["theta"] * MAS_TO_RAD) ** 2
-    return scale[:, None] * surface_flux(grid, p) * dust.factor(p)
+    if "patch_cover" in p:         # a two-temperature surface mixes fluxes, not logs
+        log = np.log10(surface_flux(grid, p))
+    else:
+        log = grid.interpolate_log(p["teff"], p["logg"], p["mh"])
+    log += dust.log10_extinction(p)
+    log += np.log10(scale)[:, None]
+    log *= _LN10
+    flux = np.exp(log, out=log)
+    veil = dust.veil_factor(p)
+    if veil is not None:
+        flux *= veil
+    return flux
 
 
 class SpectrumChannel:

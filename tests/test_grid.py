@@ -59,6 +59,14 @@ def test_holes_are_never_crossed(rng):
     # cells touching the hole are refused, others work
     assert not g.check_inside(3200.0, 0.5, -0.25)
     assert g.check_inside(3200.0, 1.0, 0.0)  # on the far face of the cell: no hole weight
+    # ... and interpolating there gives the finite, plain linear mix of the two face nodes
+    # (teff axis of the toy grid: a zero-weight hole corner must not poison it with NaN)
+    f = g.interpolate_log(3200.0, 1.0, 0.0)[0]
+    i = int(np.searchsorted(g.teff, 3200.0, side="right")) - 1
+    w = (3200.0 - g.teff[i]) / (g.teff[i + 1] - g.teff[i])
+    j, k = list(g.logg).index(1.0), list(g.mh).index(0.0)
+    np.testing.assert_allclose(f, (1 - w) * g.log_flux[i, j, k] + w * g.log_flux[i + 1, j, k],
+                               rtol=1e-12)
     with pytest.raises(OffGridError):
         g.interpolate(3700.0, 0.2, -0.4)
 

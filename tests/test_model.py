@@ -66,3 +66,28 @@ def test_angular_diameter_scaling():
     half = 1.0 * np.pi / 648e6
     np.testing.assert_allclose(f, half**2 * grid.interpolate(5000.0, 0, 0)[0], rtol=1e-12)
     assert pytest.approx(np.pi / 648e6) == np.deg2rad(1 / 3.6e6)
+
+
+@pytest.mark.parametrize("patches", [False, True])
+def test_observed_flux_is_the_plain_product(rng, patches):
+    # observed_flux sums logs and exponentiates once; it must equal the textbook product
+    # (theta/2)^2 F_surf 10^(-0.4 A_V a(lambda)) x veil (definitions; DESIGN section 4)
+    from teffmc.dust import extinction_curve
+    from teffmc.model import Dust
+
+    grid = _lined_grid(rng)
+    model = ModelSpec(veil="grey", patches=patches)
+    n = 4
+    p = {"teff": np.linspace(3500.0, 3700.0, n), "logg": np.zeros(n), "mh": np.zeros(n),
+         "theta": np.linspace(1.0, 4.0, n), "a_v": np.linspace(0.0, 2.0, n),
+         "r_v": np.full(n, 3.1), "veil_tau": np.linspace(0.0, 1.5, n),
+         "veil_cover": np.full(n, 0.6)}
+    if patches:
+        p |= {"teff": np.linspace(3650.0, 3700.0, n), "patch_cover": np.full(n, 0.2),
+              "patch_dteff": np.full(n, 150.0)}
+    got = observed_flux(grid, Dust(grid.wave, model, Prior("fixed", value=3.1)), p)
+    half = 0.5 * p["theta"] * np.pi / 648e6
+    ext = 10.0 ** (-0.4 * p["a_v"][:, None] * extinction_curve("CCM89", 3.1, grid.wave))
+    veil = 1.0 - 0.6 * (1.0 - np.exp(-p["veil_tau"]))[:, None]
+    want = half[:, None] ** 2 * surface_flux(grid, p) * ext * veil
+    np.testing.assert_allclose(got, want, rtol=1e-12)

@@ -24,6 +24,7 @@ import hashlib
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy.sparse import csr_matrix
 
 from ..errors import GridError, OffGridError
 
@@ -32,6 +33,9 @@ __all__ = ["Grid", "AXES", "FORMAT", "grid_checksum"]
 AXES = ("teff", "logg", "mh")
 FORMAT = "teffmc-grid"
 FORMAT_VERSION = 1
+
+
+_LN10 = np.log(10.0)
 
 
 def grid_checksum(teff, logg, mh, wave, log_flux):
@@ -175,19 +179,33 @@ class Grid:
             raise OffGridError(point, self.bounds)
         (i, wi), (j, wj), (k, wk) = (self._locate(a, v) for a, v in zip(AXES, (teff, logg, mh)))
         nt, ng, nm = self.teff.size, self.logg.size, self.mh.size
-        out = np.zeros((teff.size, self.wave.size))
+        # one sparse (n_points x n_models) weight matrix, 8 corners per row, times the
+        # (n_models x n_wave) log-flux matrix: ~2.5x faster than 8 gathers (bench_model).
+        # Zero-weight corners are dropped, so a point on a face next to a hole stays finite.
+        idx, wts = [], []
         for a, b, c in np.ndindex(2, 2, 2):
-            w = (wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk)
-            if not np.any(w):
-                continue
-            node = self.log_flux[np.minimum(i + a, nt - 1), np.minimum(j + b, ng - 1),
-                                 np.minimum(k + c, nm - 1)]
-            out += w[:, None] * node
-        return out
+            wts.append((wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk))
+            idx.append((np.minimum(i + a, nt - 1) * ng + np.minimum(j + b, ng - 1)) * nm
+                       + np.minimum(k + c, nm - 1))
+        wts, idx = np.concatenate(wts), np.concatenate(idx)
+        rows = np.tile(np.arange(teff.size), 8)
+        keep = wts != 0.0
+        weights = csr_matrix((wts[keep], (rows[keep], idx[keep])), shape=(teff.size, nt * ng * nm))
+        return np.asarray(weights @ self._flat())
+
+    def _flat(self):
+        """log_flux as a C-contiguous float64 (n_models, n_wave) matrix, made once."""
+        flat = self.__dict__.get("_flat_log_flux")
+        if flat is None:
+            flat = np.ascontiguousarray(self.log_flux.reshape(-1, self.wave.size), dtype=float)
+            object.__setattr__(self, "_flat_log_flux", flat)
+        return flat
 
     def interpolate(self, teff, logg, mh):
         """Surface F_lambda [erg s^-1 cm^-2 Angstrom^-1] at a batch of points, (n, n_wave)."""
-        return 10.0 ** self.interpolate_log(teff, logg, mh)
+        out = self.interpolate_log(teff, logg, mh)
+        out *= _LN10            # exp(ln 10 x) is ~4x faster than 10 ** x
+        return np.exp(out, out=out)
 
     def spectrum(self, teff, logg=0.0, mh=0.0):
         """One spectrum: ``(wave [Angstrom, vacuum], surface F_lambda)``."""
