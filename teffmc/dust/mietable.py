@@ -92,6 +92,19 @@ def _m_nodes(mat, wave):
     return order, path, m
 
 
+def log_radius(ln_grid, radius, key="grain_radius"):
+    """ln of a batch of radii [micron], checked against the table's range (ConfigError)."""
+    r = np.atleast_1d(np.asarray(radius, dtype=np.float64))
+    lo, hi = np.exp(ln_grid[0]), np.exp(ln_grid[-1])
+    bad = ~((r >= lo * (1 - 1e-12)) & (r <= hi * (1 + 1e-12)))
+    if bad.any():
+        raise ConfigError(
+            f"{key} should be in [{lo:g}, {hi:g}] micron (the table) but got {r[bad][0]:g}",
+            key=key, value=float(r[bad][0]),
+        )
+    return np.clip(np.log(r), ln_grid[0], ln_grid[-1])
+
+
 def interp_log_radius(ln_grid, table, radius, key="grain_radius", out=None):
     """Interpolate rows of ``table`` linearly in ln radius for a batch of radii.
 
@@ -118,15 +131,7 @@ def interp_log_radius(ln_grid, table, radius, key="grain_radius", out=None):
     ConfigError
         A radius outside the tabulated range.
     """
-    r = np.atleast_1d(np.asarray(radius, dtype=np.float64))
-    lo, hi = np.exp(ln_grid[0]), np.exp(ln_grid[-1])
-    bad = ~((r >= lo * (1 - 1e-12)) & (r <= hi * (1 + 1e-12)))
-    if bad.any():
-        raise ConfigError(
-            f"{key} should be in [{lo:g}, {hi:g}] micron (the table) but got {r[bad][0]:g}",
-            key=key, value=float(r[bad][0]),
-        )
-    t = np.clip(np.log(r), ln_grid[0], ln_grid[-1])
+    t = log_radius(ln_grid, radius, key)
     if isinstance(table, RowInterpolator):
         return table(t, out=out)
     i = np.clip(np.searchsorted(ln_grid, t, side="right") - 1, 0, ln_grid.size - 2)

@@ -61,10 +61,11 @@ scattering gain would only rescale ``veil_tau``).
 """
 
 import numpy as np
+from scipy.sparse import csr_matrix
 
 from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa
-from teffmc.dust.mietable import MieTable, interp_log_radius
+from teffmc.dust.mietable import MieTable, interp_log_radius, log_radius
 from teffmc.errors import ConfigError
 
 __all__ = ["VEIL_KINDS", "V_WAVE", "Veil", "forward_fraction"]
@@ -173,14 +174,16 @@ class Veil:
         self.table = table
         self._ln_r = np.log(table.radius)
         q = table.table_q_ext
-        self._q_rel = RowInterpolator(self._ln_r, q[:, pix] / q[:, ref:ref + 1])
+        q_rel = q[:, pix] / q[:, ref:ref + 1]
+        self._q_rel = RowInterpolator(self._ln_r, q_rel)
         if narrow:        # omega P(theta_c) = <Q_sca P> / <Q_ext>
             returned = table.table_q_cone[:, pix] / q[:, pix]
         else:             # omega F(g), Henyey-Greenstein forward hemisphere
             returned = table.table_q_sca[:, pix] / q[:, pix] * forward_fraction(
                 table.table_g[:, pix])
-        self._wf = RowInterpolator(self._ln_r, returned)
-        self._work = None
+        # rows [tau/veil_tau; tau omega P / veil_tau] per radius: the effective optical
+        # depth tau (1 - s omega P) of a batch is one sparse combination of these rows
+        self._rows = np.ascontiguousarray(np.vstack([q_rel, q_rel * returned]))
 
     def optical_depth(self, veil_tau, grain_radius=None):
         """Veil optical depth tau(lambda) on the pixels, shape (n, n_pix).
@@ -234,17 +237,24 @@ class Veil:
             raise ConfigError("a Mie veil needs grain_radius", key="grain_radius")
         if self.scattering and veil_scatter is None:
             raise ConfigError("a scattering veil needs veil_scatter", key="veil_scatter")
-        # in place, one (n, n_pix) allocation: see teffmc.dust._interp
-        f = interp_log_radius(self._ln_r, self._q_rel, grain_radius)
+        # tau_eff = veil_tau [A(r) - s B(r)], A and B linear in ln r between table rows:
+        # one sparse (n x 2 n_radius) weight matrix times the row table (4 rows per walker)
+        t = log_radius(self._ln_r, grain_radius)
+        nr = self._ln_r.size
+        i = np.clip(np.searchsorted(self._ln_r, t, side="right") - 1, 0, nr - 2)
+        w = (t - self._ln_r[i]) / (self._ln_r[i + 1] - self._ln_r[i])
+        coef = [tau * (1.0 - w), tau * w]
+        cols = [i, i + 1]
         if self.scattering:
-            s = _batch(veil_scatter, "veil_scatter", 0.0, 1.0)[:, None]
-            if self._work is None or self._work.shape != f.shape:
-                self._work = np.empty(f.shape)
-            wf = interp_log_radius(self._ln_r, self._wf, grain_radius, out=self._work)
-            wf *= -s
-            wf += 1.0
-            f *= wf  # tau / veil_tau of the effective extinction, 1 - s omega F
-        f *= -tau[:, None]
+            s = _batch(veil_scatter, "veil_scatter", 0.0, 1.0)
+            coef += [-s * coef[0], -s * coef[1]]
+            cols += [nr + i, nr + i + 1]
+        n = tau.size
+        weights = csr_matrix((np.concatenate(coef), (np.tile(np.arange(n), len(cols)),
+                                                     np.concatenate(cols))),
+                             shape=(n, 2 * nr))
+        f = np.asarray(weights @ self._rows)
+        f *= -1.0
         np.exp(f, out=f)
         f -= 1.0
         f *= cover
