@@ -64,7 +64,15 @@ def main():
         print(f"  log posterior, 1 BLAS thread : {_time(lambda: prep.log_post(x)):8.2f} ms")
         print(f"  grid interpolation (spectrum): "
               f"{_time(lambda: spec.grid.interpolate(p['teff'], p['logg'], p['mh'])):8.2f} ms")
-        print(f"  dust + veil factor (spectrum): {_time(lambda: spec.dust.factor(p)):8.2f} ms")
+        rng = np.random.default_rng(2)   # log g and [M/H] off the nodes (all 8 corners used)
+        n = args.walkers
+        off = (p["teff"], rng.uniform(-0.5, 0.5, n), rng.uniform(-0.4, 0.4, n))
+        if hasattr(spec.grid, "logg") and spec.grid.logg.size > 1:
+            print(f"   ... log g, [M/H] off-node  : "
+                  f"{_time(lambda: spec.grid.interpolate(*off)):8.2f} ms")
+        print(f"  interstellar extinction      : "
+              f"{_time(lambda: spec.dust.log10_extinction(p)):8.2f} ms")
+        print(f"  veil factor (spectrum)       : {_time(lambda: spec.dust.veil_factor(p)):8.2f} ms")
     print(f"  log posterior, default threads: {_time(lambda: prep.log_post(x)):8.2f} ms")
 
 
