@@ -134,9 +134,11 @@ def test_scattering_never_dims():
     assert np.all(veil.factor(*args, np.ones(n)) > veil.factor(*args, np.zeros(n)))
 
 
-@pytest.mark.parametrize("kind, scattering", [("mie", True), ("mie", False), ("grey", False)])
-def test_zero_tau_or_zero_cover_is_exactly_the_bare_photosphere(kind, scattering):
-    veil = Veil(kind, WAVE, "silicate", 0.1, scattering=scattering, radius_range=(0.1, 2.0))
+@pytest.mark.parametrize("kind, scattering, cone", [("mie", True, 90.0), ("mie", True, 10.0),
+                                                   ("mie", False, 90.0), ("grey", False, 90.0)])
+def test_zero_tau_or_zero_cover_is_exactly_the_bare_photosphere(kind, scattering, cone):
+    veil = Veil(kind, WAVE, "silicate", 0.1, scattering=scattering, radius_range=(0.1, 2.0),
+                scatter_cone_deg=cone)
     n = 5
     rng = np.random.default_rng(1)
     radius, s = rng.uniform(0.1, 2.0, n), rng.uniform(0, 1, n)
