@@ -249,10 +249,9 @@ class Veil:
             s = _batch(veil_scatter, "veil_scatter", 0.0, 1.0)
             coef += [-s * coef[0], -s * coef[1]]
             cols += [nr + i, nr + i + 1]
-        n = tau.size
-        weights = csr_matrix((np.concatenate(coef), (np.tile(np.arange(n), len(cols)),
-                                                     np.concatenate(cols))),
-                             shape=(n, 2 * nr))
+        n, k = tau.size, len(cols)
+        weights = csr_matrix((np.stack(coef, axis=1).ravel(), np.stack(cols, axis=1).ravel(),
+                              np.arange(0, k * n + 1, k)), shape=(n, 2 * nr))
         f = np.asarray(weights @ self._rows)
         f *= -1.0
         np.exp(f, out=f)

@@ -187,10 +187,10 @@ class Grid:
             wts.append((wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk))
             idx.append((np.minimum(i + a, nt - 1) * ng + np.minimum(j + b, ng - 1)) * nm
                        + np.minimum(k + c, nm - 1))
-        wts, idx = np.concatenate(wts), np.concatenate(idx)
-        rows = np.tile(np.arange(teff.size), 8)
+        wts, idx = np.stack(wts, axis=1), np.stack(idx, axis=1)     # (n, 8), row-major CSR
         keep = wts != 0.0
-        weights = csr_matrix((wts[keep], (rows[keep], idx[keep])), shape=(teff.size, nt * ng * nm))
+        indptr = np.concatenate([[0], np.cumsum(keep.sum(axis=1))])
+        weights = csr_matrix((wts[keep], idx[keep], indptr), shape=(teff.size, nt * ng * nm))
         return np.asarray(weights @ self._flat())
 
     def _flat(self):
