@@ -63,7 +63,6 @@ scattering gain would only rescale ``veil_tau``).
 import numpy as np
 from scipy.sparse import csr_matrix
 
-from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa
 from teffmc.dust.mietable import MieTable, interp_log_radius, log_radius
 from teffmc.errors import ConfigError
@@ -175,7 +174,6 @@ class Veil:
         self._ln_r = np.log(table.radius)
         q = table.table_q_ext
         q_rel = q[:, pix] / q[:, ref:ref + 1]
-        self._q_rel = RowInterpolator(self._ln_r, q_rel)
         if narrow:        # omega P(theta_c) = <Q_sca P> / <Q_ext>
             returned = table.table_q_cone[:, pix] / q[:, pix]
         else:             # omega F(g), Henyey-Greenstein forward hemisphere
@@ -202,7 +200,8 @@ class Veil:
         tau = _batch(veil_tau, "veil_tau", 0.0, np.inf)
         if self.kind == "grey":
             return np.repeat(tau[:, None], self.wave.size, axis=1)
-        return tau[:, None] * interp_log_radius(self._ln_r, self._q_rel, grain_radius)
+        q_rel = self._rows[:self._ln_r.size]           # tau / veil_tau per radius
+        return tau[:, None] * interp_log_radius(self._ln_r, q_rel, grain_radius)
 
     def factor(self, veil_tau, veil_cover, grain_radius=None, veil_scatter=None):
         """Multiplicative factor applied to the photospheric flux.
