@@ -18,46 +18,14 @@ Measured (2-core machine, shared; 8 stars): see README.md, section "Many stars".
 import argparse
 import shutil
 import tempfile
-import textwrap
 import time
 from pathlib import Path
 
 import numpy as np
 
-CONFIG = """\
-    name = "{name} (simulated)"
-    grid = "builtin"
-    [[epoch]]
-    photometry = "{name}_phot.ecsv"
-    spectra = [{{ file = "{name}_spec.ecsv", resolution = 1000.0 }}]
-    [priors]
-    teff = {{ dist = "uniform", low = 3000, high = 4500 }}
-    """
-
-
-def make_stars(folder, n, seed=1):
-    """Write ``n`` simulated stars (data + config) into ``folder``; return the configs."""
-    from teffmc.config import ModelSpec
-    from teffmc.photosphere import load_grid
-    from teffmc.simulate import simulate_epoch
-
-    grid = load_grid("builtin")
-    rng = np.random.default_rng(seed)
-    configs = []
-    for k in range(n):
-        name = f"star{k + 1:02d}"
-        truth = {"teff": rng.uniform(3400.0, 4200.0), "logg": 0.0, "mh": 0.0,
-                 "a_v": rng.uniform(0.3, 1.5), "r_v": 3.1, "theta": rng.uniform(1.0, 5.0)}
-        simulate_epoch(folder, name, grid, ModelSpec(), truth, wave_range=(6000.0, 7500.0),
-                       resolution=1000.0, snr=50.0, rng=rng)
-        path = folder / f"{name}.toml"
-        path.write_text(textwrap.dedent(CONFIG.format(name=name)))
-        configs.append(path)
-    return configs
-
-
 def main():
     from teffmc import fit_many
+    from teffmc.simulate import simulate_survey
 
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--stars", type=int, default=8)
@@ -66,7 +34,7 @@ def main():
     args = ap.parse_args()
     root = Path(args.out) if args.out else Path(tempfile.mkdtemp(prefix="bench_batch_"))
     root.mkdir(parents=True, exist_ok=True)
-    configs = make_stars(root / "stars", args.stars)
+    configs = simulate_survey(root / "stars", args.stars)
     print(f"{args.stars} simulated stars in {root / 'stars'}")
     print(f"{'workers':>7} {'batch [s]':>10} {'per star [s]':>13} {'one fit [s]':>12} "
           f"{'stars/hour':>11} {'converged':>10}")

@@ -9,10 +9,57 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["simulate_epoch", "DEFAULT_BANDS"]
+__all__ = ["simulate_epoch", "simulate_survey", "DEFAULT_BANDS"]
 
 DEFAULT_BANDS = ["bessell-B", "bessell-V", "bessell-R", "bessell-I",
                  "twomass-J", "twomass-H", "twomass-Ks"]
+
+
+_SURVEY_CONFIG = """\
+# INVENTED star {name} (simulated by teffmc.simulate.simulate_survey; not a real star).
+# Truth: teff = {teff:.1f} K, a_v = {a_v:.3f}, theta = {theta:.3f} mas, logg = 0, mh = 0.
+name = "{name} (invented)"
+grid = "{grid}"
+[[epoch]]
+photometry = "{name}_phot.ecsv"
+spectra = [{{ file = "{name}_spec.ecsv", resolution = 1000.0 }}]
+[priors]
+teff = {{ dist = "uniform", low = 3000, high = 4500 }}
+"""
+
+
+def simulate_survey(folder, n, *, grid="builtin", seed=1):
+    """Write ``n`` INVENTED stars (data + one config each) into ``folder``.
+
+    Each star: Teff 3400-4200 K, A_V 0.3-1.5, theta 1-5 mas (uniform draws), log g 0,
+    [M/H] 0; BVRIJHKs photometry and a 6000-7500 A spectrum at R = 1000, S/N 50, noise
+    drawn. The configs give only the data and a Teff prior (defaults for the rest);
+    the true values are in a comment at the top of each config. Used by
+    ``bench/bench_batch.py`` and ``examples/make_survey_data.py``.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The config files, ``star01.toml`` ...
+    """
+    from .config import ModelSpec
+    from .photosphere import load_grid
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    g = load_grid(grid)
+    rng = np.random.default_rng(seed)
+    configs = []
+    for k in range(n):
+        name = f"star{k + 1:02d}"
+        truth = {"teff": rng.uniform(3400.0, 4200.0), "logg": 0.0, "mh": 0.0,
+                 "a_v": rng.uniform(0.3, 1.5), "r_v": 3.1, "theta": rng.uniform(1.0, 5.0)}
+        simulate_epoch(folder, name, g, ModelSpec(), truth, wave_range=(6000.0, 7500.0),
+                       resolution=1000.0, snr=50.0, rng=rng)
+        path = folder / f"{name}.toml"
+        path.write_text(_SURVEY_CONFIG.format(name=name, grid=grid, **truth), encoding="utf-8")
+        configs.append(path)
+    return configs
 
 
 def _params(truth):
