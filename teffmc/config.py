@@ -17,7 +17,12 @@ __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_
            "parse_config"]
 
 VEILS = ("none", "grey", "mie")
-DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter")
+DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter",
+                  "mismatch_amp", "mismatch_scale")
+#: model-mismatch term of a spectrum (teffmc.likelihood.mismatch); the default is the
+#: one a careful user wants for a real star: no grid reproduces it pixel by pixel
+MISMATCH_KINDS = ("none", "white", "correlated")
+DEFAULT_MISMATCH = "correlated"
 
 
 @dataclass(frozen=True)
@@ -35,6 +40,7 @@ class SpectrumSpec:
     wave_unit: str | None = None
     flux_unit: str | None = None
     columns: tuple = ()           # ((role, column or FITS extension name), ...)
+    mismatch: str = DEFAULT_MISMATCH
 
 
 @dataclass(frozen=True)
@@ -56,6 +62,7 @@ class ModelSpec:
     likelihood: str = "gaussian"
     student_nu: float = 4.0
     interp_error: bool = False
+    mismatch_terms: tuple = ()    # the kinds of mismatch term the spectra use (set by parse)
 
 
 @dataclass(frozen=True)
@@ -211,6 +218,8 @@ def _spectrum(r: _Reader, base):
         wave_unit=r.get("wave_unit", str),
         flux_unit=r.get("flux_unit", str),
         columns=_columns(r),
+        mismatch=(r.choice("mismatch", MISMATCH_KINDS, None) if "mismatch" in r.table
+                  else None),   # None: the default for the likelihood, set in parse_config
     )
     if s.resolution is not None and s.fwhm_A is not None:
         raise r.err("fwhm_A", "give resolution or fwhm_A, not both", s.fwhm_A)
@@ -292,6 +301,14 @@ def parse_config(table, path="<config>"):
     if len(set(labels)) != len(labels):
         raise top.err("epoch", f"epoch labels must be unique but got {labels}", labels)
 
+    # the default mismatch term: correlated for the Gaussian likelihood; the Student-t
+    # likelihood (robust, independent pixels) has none
+    default = "none" if model.likelihood == "student_t" else DEFAULT_MISMATCH
+    epochs = [replace(e, spectra=tuple(replace(s, mismatch=s.mismatch or default)
+                                       for s in e.spectra)) for e in epochs]
+    terms = {s.mismatch for e in epochs for s in e.spectra} - {"none"}
+    model = replace(model, mismatch_terms=tuple(sorted(terms)))
+
     shared = tuple(top.get("shared", list, list(DEFAULT_SHARED)))
     for s in shared:
         if not isinstance(s, str):
@@ -347,6 +364,10 @@ def parse_config(table, path="<config>"):
         if lik == "student_t" and calibrated:
             raise ConfigError("the Student-t likelihood cannot marginalise a calibration "
                               "polynomial; set calibration_order = -1 or use gaussian",
+                              file=str(path), key=where, value=lik)
+        if lik == "student_t" and terms:
+            raise ConfigError("the Student-t likelihood has no mismatch term; set mismatch = "
+                              "\"none\" in every spectrum or use gaussian",
                               file=str(path), key=where, value=lik)
     if sampler.seed < 0:
         raise ConfigError(f"should be >= 0 but got {sampler.seed}", file=str(path),

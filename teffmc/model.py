@@ -18,6 +18,7 @@ the interstellar law and ``V`` the circumstellar veil factor (1 without a veil).
 import numpy as np
 
 from .dust import ExtinctionTable, Veil
+from .constants import C_KMS
 
 __all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "observed_flux", "band_pixels", "SpectrumChannel",
            "PhotometryChannel"]
@@ -117,7 +118,7 @@ class SpectrumChannel:
 
     def __init__(self, spectrum, grid, model, r_v_prior, *, resolution=None, fwhm_A=None,
                  calibration_order=-1, calibration_sigma=0.2, name="spectrum",
-                 interp_error=False):
+                 interp_error=False, mismatch="none"):
         use = np.asarray(spectrum.mask, bool)
         self.name = name
         self.wave = np.asarray(spectrum.wave, float)[use]
@@ -135,6 +136,9 @@ class SpectrumChannel:
 
             axes = tuple(a for a in ("teff", "logg", "mh") if getattr(self.grid, a).size >= 3)
             self.interp_frac = np.nan_to_num(leave_one_out_error(self.grid, axes=axes))
+        # model-mismatch term (teffmc.likelihood.mismatch) and its kernel axis [km/s]
+        self.mismatch = mismatch
+        self.velocity = C_KMS * np.log(self.wave)
         self.calibration_order = int(calibration_order)
         self.calibration_sigma = float(calibration_sigma)
         if self.calibration_order >= 0:

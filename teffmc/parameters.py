@@ -17,20 +17,22 @@ __all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS", "POSITIVE"]
 
 #: every parameter any model variant can have
 ALL_PARAMETERS = ("teff", "logg", "mh", "theta", "a_v", "r_v", "jitter", "veil_tau",
-                  "veil_cover", "grain_radius", "veil_scatter", "patch_cover", "patch_dteff")
+                  "veil_cover", "grain_radius", "veil_scatter", "patch_cover", "patch_dteff",
+                  "mismatch_amp", "mismatch_scale")
 #: parameters that enter only through their square or a logarithm: must stay > 0
-POSITIVE = ("theta", "jitter", "grain_radius")
+POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale")
 
 UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
          "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
          "patch_cover": "", "patch_dteff": "K", "rv_kms": "km/s", "jitter": "",
-         "distance_pc": "pc"}
+         "distance_pc": "pc", "mismatch_amp": "", "mismatch_scale": "km/s"}
 LABELS = {"teff": r"$T_\mathrm{eff}$ [K]", "logg": r"$\log g$", "mh": "[M/H]",
           "a_v": r"$A_V$", "r_v": r"$R_V$", "theta": r"$\theta$ [mas]",
           "veil_tau": r"$\tau_\mathrm{veil}$", "veil_cover": r"$f_\mathrm{veil}$",
           "grain_radius": r"$a$ [µm]", "veil_scatter": r"$s_\mathrm{veil}$",
           "patch_cover": r"$f_\mathrm{patch}$", "patch_dteff": r"$\Delta T_\mathrm{patch}$",
-          "jitter": "jitter", "distance_pc": "d [pc]"}
+          "jitter": "jitter", "distance_pc": "d [pc]",
+          "mismatch_amp": r"$\sigma_\mathrm{mis}$", "mismatch_scale": r"$\rho_\mathrm{mis}$ [km/s]"}
 
 
 def model_parameters(model, grid_bounds):
@@ -62,6 +64,17 @@ def model_parameters(model, grid_bounds):
         p["grain_radius"] = Prior("loguniform", low=0.02, high=5.0)
         if model.scattering:
             p["veil_scatter"] = Prior("uniform", low=0.0, high=1.0)
+    if model.mismatch_terms:
+        # grid-mismatch amplitude as a fraction of the model flux: 0.1 % (a grid as good as
+        # the data) to 50 % (a band the grid lacks); log-uniform, common practice, no source
+        p["mismatch_amp"] = Prior("loguniform", low=1e-3, high=0.5)
+    if "correlated" in model.mismatch_terms:
+        # correlation length [km/s]: from a few resolution elements at R ~ 10^4 (a line
+        # the grid lacks) to a molecular band's width (~3 % of the wavelength; longer
+        # scales are the calibration polynomial's); common practice, no source. Two
+        # decades: where the data do not constrain it (a grid that fits), a wider prior
+        # only lengthens the chain.
+        p["mismatch_scale"] = Prior("loguniform", low=100.0, high=10000.0)
     if model.patches:
         p["patch_cover"] = Prior("uniform", low=0.0, high=0.9)
         p["patch_dteff"] = Prior("uniform", low=0.0, high=1500.0)

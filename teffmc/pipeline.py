@@ -13,6 +13,8 @@ from . import __version__
 from . import posterior as post_mod
 from .budget import dimming_budget
 from .derived import bolometric
+from .goodness import cautions as gof_cautions
+from .goodness import BAD_CHI2_NU, goodness_of_fit
 from .model import Dust, band_pixels, observed_flux
 from .report import corner_figure, fit_figure, write_summary
 from .tomlout import dumps_toml
@@ -21,26 +23,72 @@ __all__ = ["sample_posterior", "finish_run", "derived_quantities", "VBand"]
 
 CHUNK = 512
 MAX_STORED_DRAWS = 8000   # posterior draws kept in posterior.nc (all walkers together)
+MAX_GOF_DRAWS = 200       # draws for the goodness-of-fit numbers
 MAX_LOO_DRAWS = 2000      # draws with pointwise log-likelihood (PSIS-LOO works well here)
 CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synthesis; "
                 "for publication-grade temperatures import a validated model grid.")
 
 
+class LogCoordinates:
+    """The sampler's coordinates: ln x for every parameter with a log-uniform prior.
+
+    A log-uniform prior spanning decades is flat in ln x but piles up at the low end in
+    x; the ensemble moves (differences and stretches of walker positions) then mix
+    slowly -- measured on the demo with a correlated mismatch term: tau of
+    ``mismatch_scale`` 478 steps sampled in x. The density in u = ln x carries the
+    Jacobian, log p(u) = log p(x(u)) + sum ln x; draws are returned in x.
+    """
+
+    def __init__(self, space, log_post):
+        self.log_post = log_post
+        self.space = space
+        self.log = np.array([p.kind == "loguniform" for p in space.priors], bool)
+
+    def to_x(self, u):
+        x = np.array(u, float, copy=True)
+        x[..., self.log] = np.exp(x[..., self.log])
+        return x
+
+    def to_u(self, x):
+        u = np.array(x, float, copy=True)
+        u[..., self.log] = np.log(u[..., self.log])
+        return u
+
+    def jacobian(self, u):
+        return np.sum(np.asarray(u)[..., self.log], axis=-1)
+
+    def __call__(self, u):
+        u = np.atleast_2d(np.asarray(u, float))
+        return self.log_post(self.to_x(u)) + self.jacobian(u)
+
+    def sample_prior(self, rng, n):
+        return self.to_u(self.space.sample_prior(rng, n))
+
+    def result_in_x(self, result):
+        """A :class:`~teffmc.sample.SampleResult` in u turned into one in x."""
+        return replace(result, chain=self.to_x(result.chain),
+                       log_prob=result.log_prob - self.jacobian(result.chain))
+
+
 def sample_posterior(prep, checkpoint, *, resume, quiet, log):
-    """Optimised start, then emcee until converged or out of steps."""
+    """Optimised start, then emcee until converged or out of steps (in log coordinates
+    for log-uniform priors, see :class:`LogCoordinates`)."""
     from .sample import find_start, initial_ball, run_sampler
 
     s = prep.config.sampler
+    coords = LogCoordinates(prep.space, prep.log_post)
     rng = np.random.default_rng(s.seed)
     x0 = None
     if not resume:
-        x0 = find_start(prep.log_post, prep.space.sample_prior, n_starts=s.n_starts, rng=rng)
-        log("start: " + ", ".join(f"{n}={v:.4g}" for n, v in zip(prep.space.names, x0)))
-        x0 = initial_ball(x0, rng, s.n_walkers, prep.log_post, scale=1e-3)
-    return run_sampler(prep.log_post, x0, names=prep.space.names, n_walkers=s.n_walkers,
-                       seed=s.seed, max_steps=s.max_steps, min_steps=s.min_steps,
-                       check_every=s.check_every, checkpoint=checkpoint, resume=resume,
-                       progress=not quiet, log=log)
+        x0 = find_start(coords, coords.sample_prior, n_starts=s.n_starts, rng=rng)
+        log("start: " + ", ".join(f"{n}={v:.4g}" for n, v in zip(prep.space.names,
+                                                                 coords.to_x(x0))))
+        x0 = initial_ball(x0, rng, s.n_walkers, coords, scale=1e-3)
+    result = run_sampler(coords, x0, names=prep.space.names, n_walkers=s.n_walkers,
+                         seed=s.seed, max_steps=s.max_steps, min_steps=s.min_steps,
+                         check_every=s.check_every, checkpoint=checkpoint, resume=resume,
+                         progress=not quiet, log=log)
+    return coords.result_in_x(result)
 
 
 class VBand:
@@ -153,6 +201,8 @@ def _predict(prep, x):
                 var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
                 if ch.interp_frac is not None:  # the same variance as the likelihood
                     var = var + (ch.interp_frac[None, :] * m) ** 2
+                if ch.mismatch != "none":  # its diagonal: the polynomial for the figure
+                    var = var + (p["mismatch_amp"][:, None] * m) ** 2
                 m = m * (1.0 + calibration_mean(ch.data, var, m, ch.basis,
                                                 np.full(ch.basis.shape[0],
                                                         ch.calibration_sigma)))
@@ -208,6 +258,10 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
     dt = post_mod.build(result, derived=derived, pointwise=pointwise, observed=observed,
                         predictive=predictive, attrs=attrs, constant=constant)
     post_mod.save(dt, folder / "posterior.nc")
+    gof = goodness_of_fit(prep, flat[rng.permutation(flat.shape[0])[:MAX_GOF_DRAWS]], rng)
+    for key, g in gof.items():
+        log(f"fit of {key}: chi2/nu = {g['chi2_nu']:.2f} ({g['n_points']} points), "
+            f"rms {g['rms_sigma']:.2f} sigma, posterior-predictive p = {g['ppc_p']:.3f}")
     summary = {
         "hypothesis": hypothesis,
         "converged": bool(result.converged),
@@ -221,7 +275,9 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
         "fixed": space.fixed_values(),
         "epochs": list(space.labels),
         "grid": {"name": cfg.grid, "checksum": grid_checksum},
+        "goodness_of_fit": gof,
         "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
+        + gof_cautions(gof)
         + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
     }
     if cfg.sampler.evidence:
@@ -237,8 +293,10 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
     log("figures")
     corner_figure(flat, space.names, folder / "corner.png", converged=result.converged,
                   title=cfg.name)
+    bad = gof_cautions(gof)
     fit_figure(_panels(prep, predictive), folder / "fit.png", converged=result.converged,
-               title=cfg.name)
+               title=cfg.name + (f"\nBAD FIT: {len(bad)} data set(s) with chi2/nu > "
+                                 f"{BAD_CHI2_NU:g} (see summary.json)" if bad else ""))
     for c in summary["cautions"]:
         log("CAUTION: " + c)
     log(f"done: {folder.name.removesuffix('.partial')}")

@@ -18,6 +18,7 @@ from threadpoolctl import threadpool_limits
 
 from . import __version__
 from .config import load_config
+from .constants import C_KMS
 from .errors import ConfigError, DataError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
@@ -25,7 +26,6 @@ from .parameters import ParameterSpace
 
 __all__ = ["fit", "FitResult", "prepare", "Prepared"]
 
-C_KMS = 299792.458  # speed of light [km/s], exact (SI definition)
 RUN_FILES = ("posterior.nc", "summary.json", "summary.ecsv", "run.toml", "corner.png",
              "fit.png", "log.txt")
 
@@ -107,7 +107,8 @@ def prepare(config, grid=None, log=print, other_models=()):
                 s, grid, cfg.model, r_v_prior, resolution=spec.resolution, fwhm_A=spec.fwhm_A,
                 interp_error=cfg.model.interp_error,
                 calibration_order=spec.calibration_order,
-                calibration_sigma=spec.calibration_sigma, name=f"spectrum{i + 1}"))
+                calibration_sigma=spec.calibration_sigma, name=f"spectrum{i + 1}",
+                mismatch=spec.mismatch))
             log(f"epoch {ep.label}: spectrum {spec.file.name}, {chans[-1].n_points} pixels used")
         if ep.photometry is not None:
             phot = read_photometry(ep.photometry)
@@ -223,6 +224,10 @@ def summary_to_text(summary):
             lines.append(f"{name:>18s} = {s['median']:.6g} (+{s['p84'] - s['median']:.3g} "
                          f"-{s['median'] - s['p16']:.3g})  r_hat {s['r_hat']:.3f}  "
                          f"ess {s['ess_bulk']:.0f}")
+    for key, g in summary.get("goodness_of_fit", {}).items():
+        flag = "  BAD FIT" if g["chi2_nu"] > 2.0 else ""
+        lines.append(f"fit of {key}: chi2/nu {g['chi2_nu']:.2f} over {g['n_points']} points, "
+                     f"rms {g['rms_sigma']:.2f} sigma{flag}")
     return "\n".join(lines)
 
 

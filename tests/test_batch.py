@@ -29,7 +29,7 @@ def _config(name, *, data, max_steps):
         grid = "blackbody"
         [[epoch]]
         photometry = "{data}_phot.ecsv"
-        spectra = [{{ file = "{data}_spec.ecsv", resolution = 100.0 }}]
+        spectra = [{{ file = "{data}_spec.ecsv", resolution = 100.0, mismatch = "none" }}]
         [priors]
         teff = {{ dist = "uniform", low = 3000, high = 6000 }}
         logg = {{ fixed = 0.0 }}

@@ -59,10 +59,10 @@ def test_per_epoch_r_v_gets_its_own_extinction_table(tmp_path):
         shared = ["logg", "mh", "a_v", "theta"]
         [[epoch]]
         label = "a"
-        spectra = [{ file = "a_spec.ecsv", resolution = 200.0 }]
+        spectra = [{ file = "a_spec.ecsv", resolution = 200.0, mismatch = "none" }]
         [[epoch]]
         label = "b"
-        spectra = [{ file = "b_spec.ecsv", resolution = 200.0 }]
+        spectra = [{ file = "b_spec.ecsv", resolution = 200.0, mismatch = "none" }]
         [priors]
         "r_v@a" = { fixed = 3.1 }
         "r_v@b" = { fixed = 4.0 }

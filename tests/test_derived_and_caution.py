@@ -43,7 +43,7 @@ def test_short_run_says_not_converged(tmp_path):
         grid = "blackbody"
         [[epoch]]
         photometry = "s_phot.ecsv"
-        spectra = [{ file = "s_spec.ecsv", resolution = 200.0 }]
+        spectra = [{ file = "s_spec.ecsv", resolution = 200.0, mismatch = "none" }]
         [priors]
         logg = { fixed = 0.0 }
         mh = { fixed = 0.0 }

@@ -47,7 +47,7 @@ def test_same_loglike_from_every_format(tmp_path):
         (tmp_path / "c.toml").write_text(textwrap.dedent(f"""\
             grid = "blackbody"
             [[epoch]]
-            spectra = [{{ file = "{name}", telluric_mask = false }}]
+            spectra = [{{ file = "{name}", telluric_mask = false, mismatch = "none" }}]
             [priors]
             logg = {{ fixed = 0.0 }}
             mh = {{ fixed = 0.0 }}

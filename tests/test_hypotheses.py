@@ -35,11 +35,11 @@ veil = "none"
 [[epoch]]
 label = "bright"
 photometry = "bright_phot.ecsv"
-spectra = [{ file = "bright_spec.ecsv", resolution = 300.0 }]
+spectra = [{ file = "bright_spec.ecsv", resolution = 300.0, mismatch = "none" }]
 [[epoch]]
 label = "faint"
 photometry = "faint_phot.ecsv"
-spectra = [{ file = "faint_spec.ecsv", resolution = 300.0 }]
+spectra = [{ file = "faint_spec.ecsv", resolution = 300.0, mismatch = "none" }]
 [priors]
 teff = { dist = "uniform", low = 3300, high = 4000 }
 logg = { fixed = 0.0 }

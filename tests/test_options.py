@@ -25,7 +25,7 @@ def _case(tmp, *, grid="builtin", spec_extra="", model_extra="", top_extra=""):
         {model_extra}
         [[epoch]]
         photometry = "o_phot.ecsv"
-        spectra = [{{ file = "o_spec.ecsv", resolution = 500.0 {spec_extra} }}]
+        spectra = [{{ file = "o_spec.ecsv", resolution = 500.0, mismatch = "none" {spec_extra} }}]
         [priors]
         logg = {{ fixed = 0.0 }}
         mh = {{ fixed = 0.0 }}

@@ -28,7 +28,7 @@ def blackbody_run(tmp_path_factory):
         distance_pc = { fixed = 1000.0 }
         [[epoch]]
         photometry = "star_phot.ecsv"
-        spectra = [{ file = "star_spec.ecsv", resolution = 500.0 }]
+        spectra = [{ file = "star_spec.ecsv", resolution = 500.0, mismatch = "none" }]
         [priors]
         teff = { dist = "uniform", low = 3000, high = 6000 }
         logg = { fixed = 0.0 }

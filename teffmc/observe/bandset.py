@@ -27,13 +27,13 @@ is integrated on the same model grid, so a flat-f_nu model gives exactly 0.
 import numpy as np
 
 from teffmc.errors import DataError
+from teffmc.constants import C_A_PER_S
 from teffmc.observe.filters import get_filter, vega_spectrum
 
 __all__ = ["AB_FNU0", "C_A_PER_S", "VEGA_MAG", "BandSet", "synth_mag"]
 
 VEGA_MAG = 0.03  # Bohlin & Gilliland 2004 V = 0.026 +- 0.008, rounded (common practice)
 AB_FNU0 = 10.0 ** (-0.4 * 48.60)  # [erg s^-1 cm^-2 Hz^-1], Oke & Gunn 1983: 3630.78 Jy
-C_A_PER_S = 2.99792458e18  # speed of light [A/s], exact (SI)
 _SYSTEMS = ("vega", "ab")
 
 

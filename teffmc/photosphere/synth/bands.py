@@ -13,11 +13,13 @@ spin sub-heads. Integrated cross-section per molecule in the lower electronic st
 (pi e^2 / m c^2) f = 8.853e-13 cm x f (classical oscillator, e.g. Gray 2005 eq. 11.11).
 """
 
+from contextlib import contextmanager
+
 import numpy as np
 
 from .constants import HC_K, KB
 
-__all__ = ["TIO_SYSTEMS", "band_basis", "band_weights"]
+__all__ = ["PHYSICS", "TIO_SYSTEMS", "band_basis", "band_weights", "physics"]
 
 _C2 = HC_K * 1e-8                 # hc/k [cm K]
 _PI_E2_MC2 = 8.853e-13            # pi e^2/(m_e c^2) [cm] (= pi r_e, CODATA 2018 r_e)
@@ -110,8 +112,29 @@ def band_basis(wave):
     return np.array(rows), names
 
 
+#: scale factors of the most uncertain opacities, 1 = nominal. The grid's nuisance axes
+#: (teffmc.photosphere.nuisance) are models rebuilt with these changed; set them only
+#: through :func:`physics`.
+PHYSICS = {"tio": 1.0, "haze": 1.0}
+
+
+@contextmanager
+def physics(tio=1.0, haze=1.0):
+    """Temporarily scale the TiO band opacity and the atomic line haze."""
+    old = dict(PHYSICS)
+    PHYSICS.update(tio=float(tio), haze=float(haze))
+    try:
+        yield
+    finally:
+        PHYSICS.update(old)
+
+
 def band_weights(T, sp, mh):
-    """Number density x population factors, shape (n_depth, n_basis) [cm^-3 x cm^..]."""
+    """Number density x population factors, shape (n_depth, n_basis) [cm^-3 x cm^..].
+
+    The TiO columns are multiplied by ``PHYSICS["tio"]``, the haze columns by
+    ``PHYSICS["haze"]``.
+    """
     T = np.asarray(T, float)
     kT = KB * T
     n_tio = sp["TiO"] / kT
@@ -123,7 +146,7 @@ def band_weights(T, sp, mh):
         frac = g * np.exp(-_C2 * te / T) / qel
         x = np.exp(-_C2 * w2 / T)
         for v2 in range(_NV):
-            cols.append(n_tio * _PI_E2_MC2 * f * frac * (1 - x) * x**v2)
+            cols.append(PHYSICS["tio"] * n_tio * _PI_E2_MC2 * f * frac * (1 - x) * x**v2)
     cols.append(sp["H2O"] / kT)
     x = np.exp(-_C2 * 2143.0 / T)            # CO vibrational populations (w = 2170 approx)
     for v2 in range(3):
@@ -131,5 +154,5 @@ def band_weights(T, sp, mh):
     theta = 5040.0 / T
     for key, comps in (("Fe", HAZE_I), ("Fe+", HAZE_II)):
         for _s, _l0, _L, chi in comps:
-            cols.append(sp[key] / kT * 10.0 ** (-chi * (theta - 1.0)))
+            cols.append(PHYSICS["haze"] * sp[key] / kT * 10.0 ** (-chi * (theta - 1.0)))
     return np.array(cols).T

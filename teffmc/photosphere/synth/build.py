@@ -25,6 +25,7 @@ from .atmosphere import (
     wave_fine,
     wave_full,
 )
+from . import bands
 from .constants import SIGMA
 from .opacity import Opacity
 
@@ -77,12 +78,19 @@ def bolometric_deviation(wave, flux, teff):
     return fb / (SIGMA * teff**4) - 1.0
 
 
-def compute_column(logg, mh, teffs=None):
+def compute_column(logg, mh, teffs=None, physics=None):
     """Models along Teff (hot to cool) at one (logg, mh).
+
+    ``physics``: ``{"tio": s, "haze": s}`` opacity scale factors (default nominal).
 
     Returns (log_flux float32 (n_teff, n_fine), deviation (n_teff,), iterations,
     flux_error) in ascending Teff order.
     """
+    with bands.physics(**(physics or {})):
+        return _compute_column(logg, mh, teffs)
+
+
+def _compute_column(logg, mh, teffs):
     teffs = TEFF if teffs is None else np.asarray(teffs, float)
     full = _opacity("full")
     wf = wave_full()
@@ -117,7 +125,8 @@ def _column_task(args):
     return compute_column(logg, mh)
 
 
-def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=False):
+def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=False,
+               physics=None):
     """Compute the built-in photosphere grid and write it to ``out_path`` (HDF5).
 
     Nodes whose emergent flux misses sigma Teff^4 by more than ENERGY_TOL (or that fail)
@@ -135,7 +144,7 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
     if workers == 1:
         results = []
         for k, tsk in enumerate(tasks):
-            results.append(compute_column(*tsk, teffs=teff))
+            results.append(compute_column(*tsk, teffs=teff, physics=physics))
             if progress:
                 print(f"column {k + 1}/{len(tasks)} done, {time.time() - t0:.0f} s", flush=True)
     else:
@@ -147,7 +156,8 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
         try:
             with mp.get_context("spawn").Pool(workers) as pool:
                 results = []
-                for k, r in enumerate(pool.imap(partial(_column_args, teff=teff), tasks)):
+                for k, r in enumerate(pool.imap(partial(_column_args, teff=teff, physics=physics),
+                                                     tasks)):
                     results.append(r)
                     if progress:
                         print(f"column {k + 1}/{len(tasks)} done, {time.time() - t0:.0f} s",
@@ -200,5 +210,5 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
     return grid
 
 
-def _column_args(task, teff):
-    return compute_column(task[0], task[1], teffs=teff)
+def _column_args(task, teff, physics=None):
+    return compute_column(task[0], task[1], teffs=teff, physics=physics)

@@ -3,13 +3,17 @@
 Spectra: Gaussian (or Student-t) in flux with variance ``(jitter * err)^2``; with a
 calibration polynomial the likelihood is analytically marginalised over its
 coefficients (see :func:`teffmc.observe.calibration.marginal_loglike`).
+A spectrum's model-mismatch term (``mismatch = "white"`` or ``"correlated"``) adds a
+covariance in units of the model flux (:mod:`teffmc.likelihood.mismatch`); with the
+correlated term the pointwise terms are leave-one-pixel-out conditionals.
 Photometry: Gaussian in magnitudes with the error and a systematic floor added in
 quadrature.
 """
 
 import numpy as np
 
-from .errors import OffGridError
+from ..errors import OffGridError
+from .mismatch import correlated_loglike, correlated_loo_pointwise
 
 __all__ = ["Posterior"]
 
@@ -60,14 +64,21 @@ class Posterior:
         var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
         if ch.interp_frac is not None:
             var = var + (ch.interp_frac[None, :] * model) ** 2
+        mismatch = getattr(ch, "mismatch", "none")
+        if mismatch == "white":
+            var = var + (p["mismatch_amp"][:, None] * model) ** 2
+        elif mismatch == "correlated":
+            fn = correlated_loo_pointwise if pointwise else correlated_loglike
+            return fn(ch.data, var, model, ch.velocity, p["mismatch_amp"], p["mismatch_scale"],
+                      ch.basis, ch.calibration_sigma)
         if ch.likelihood == "student_t":
-            from .observe.calibration import student_t_loglike, student_t_pointwise
+            from ..observe.calibration import student_t_loglike, student_t_pointwise
 
             if not pointwise:
                 return student_t_loglike(ch.data, var, model, ch.student_nu)
             return student_t_pointwise(ch.data, var, model, ch.student_nu)
         if ch.basis is not None:
-            from .observe.calibration import marginal_loglike, calibration_mean
+            from ..observe.calibration import marginal_loglike, calibration_mean
 
             if not pointwise:
                 return marginal_loglike(ch.data, var, model, ch.basis,

@@ -1,0 +1,11 @@
+"""Physical constants shared by the numerical core, taken from astropy.constants (CODATA).
+
+One definition each, so that photosphere, observe and likelihood cannot disagree.
+"""
+
+from astropy import constants as _c
+
+__all__ = ["C_KMS", "C_A_PER_S"]
+
+C_KMS = float(_c.c.to_value("km/s"))          #: speed of light [km/s] (299792.458, exact)
+C_A_PER_S = float(_c.c.to_value("Angstrom/s"))  #: speed of light [Angstrom/s]
