@@ -1,11 +1,17 @@
 """Command line: ``teffmc demo | fit | batch | compare | report | grid``.
 
 Exit codes: 0 success; 2 bad input (one line naming file, key or column, and the
-value; no traceback); 1 internal error, or for ``batch``: at least one star failed.
+value; no traceback); 1 internal error, or for ``batch``: at least one star failed;
+130 interrupted by Ctrl-C or, for ``fit`` and ``batch``, SIGTERM (one line saying how
+to resume).
 """
 
 import argparse
+import shlex
+import signal
 import sys
+import threading
+from contextlib import contextmanager, nullcontext
 from pathlib import Path
 
 from . import __version__
@@ -24,26 +30,57 @@ def _cmd_fit(args):
 
 
 def _cmd_batch(args):
-    import signal
-    import threading
-
     from .batch import fit_many, read_config_list
-
-    def stop(signum, frame):  # a job scheduler's SIGTERM: stop the workers, keep the table
-        raise SystemExit(128 + signum)
 
     configs = [Path(c) for c in args.configs]
     for lst in args.list or []:
         configs += read_config_list(lst)
-    main_thread = threading.current_thread() is threading.main_thread()
-    old = signal.signal(signal.SIGTERM, stop) if main_thread else None
-    try:
-        table = fit_many(configs, args.out, workers=args.workers, redo=args.redo,
-                         quiet=args.quiet)
-    finally:
-        if main_thread:
-            signal.signal(signal.SIGTERM, old)
+    table = fit_many(configs, args.out, workers=args.workers, redo=args.redo,
+                     quiet=args.quiet)
     return 1 if any(s == "failed" for s in table["status"]) else 0
+
+
+@contextmanager
+def _sigterm_as_interrupt():
+    """SIGTERM (a job scheduler's stop) raises KeyboardInterrupt, as Ctrl-C does: the same
+    clean stop (``batch`` stops its workers and keeps its table, ``fit`` keeps its
+    checkpoint), one line, exit 130. Only the main thread may set signal handlers."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    old = signal.signal(signal.SIGTERM, stop)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, old)
+
+
+def _interrupted(args):
+    """The line printed on Ctrl-C or SIGTERM: what was kept and how to go on."""
+    if args.command == "batch":
+        return "interrupted; finished stars and checkpoints are kept: re-run the same " \
+               "command to resume"
+    if args.command != "fit":
+        return "interrupted"
+    from .run import default_out
+
+    out = Path(args.out) if args.out else default_out(args.config)
+    resume = f"`teffmc fit {shlex.quote(args.config)} --out {shlex.quote(str(out))} --resume`"
+    kept = [str(p.parent) for p in [out.with_name(out.name + ".partial") / "chain.h5",
+                                    *sorted(out.glob("*.partial/chain.h5"))] if p.is_file()]
+    if kept:
+        return (f"interrupted; the checkpoint is kept in {', '.join(kept)}: resume with "
+                f"{resume}")
+    finished = [p.parent.name for p in sorted(out.glob("*/summary.json"))]
+    if finished and not any((out / f).is_file() for f in ("compare.json", "stack.json")):
+        return (f"interrupted; the finished runs {', '.join(finished)} are kept in {out}: "
+                f"resume with {resume}")
+    return "interrupted before the first checkpoint, nothing was kept: run the same " \
+           "command again"
 
 
 def _cmd_demo(args):
@@ -77,7 +114,8 @@ def _cmd_grid(args):
     if args.grid_cmd == "build":
         from .photosphere.synth import build_grid
 
-        build_grid(args.out, workers=args.workers)
+        build_grid(args.out, workers=args.workers, nuisance=not args.no_nuisance,
+                   progress=True)
         print(load_grid(args.out).describe())
         return 0
     from .photosphere.importer import import_grid
@@ -153,6 +191,8 @@ def build_parser():
     gb = gs.add_parser("build", help="compute the built-in grid with teffmc's LTE synthesis")
     gb.add_argument("--out", required=True, help="output grid file (.h5)")
     gb.add_argument("--workers", type=int, default=2, help="processes (default: %(default)s)")
+    gb.add_argument("--no-nuisance", action="store_true",
+                    help="skip the nuisance axes (TiO and line-haze scales; 4 more grids)")
     gm = gs.add_parser("import", help="make a grid file from a folder of model spectra")
     gm.add_argument("folder", help="folder holding the spectra (FITS or text tables)")
     gm.add_argument("table", help="table (ECSV/CSV) with columns file, teff, logg, mh")
@@ -167,13 +207,14 @@ def build_parser():
 def main(argv=None):
     args = build_parser().parse_args(argv)
     try:
-        return args.func(args)
+        with _sigterm_as_interrupt() if args.command in ("fit", "batch") else nullcontext():
+            return args.func(args)
     except TeffmcError as exc:
         msg = " ".join(str(exc).split())
         print(f"teffmc: error: {msg}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print("teffmc: interrupted", file=sys.stderr)
+        print(f"teffmc: {_interrupted(args)}", file=sys.stderr)
         return 130
 
 

@@ -11,7 +11,6 @@ Two estimates side by side:
   the runs computed it (``[sampler] evidence = true``).
 """
 
-import json
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -58,7 +57,7 @@ def compare_runs(run_dirs, out=None):
                      "elpd_loo": elpd, "se": se,
                      "n_points": int(elpd_i.size), "n_bad_k": int(np.sum(k > K_WARN)),
                      "max_k": float(np.max(k)), "converged": bool(summ["converged"]),
-                     "log_z": ev.get("log_z", np.nan), "log_z_err": ev.get("log_z_err", np.nan)})
+                     "log_z": _number(ev.get("log_z")), "log_z_err": _number(ev.get("log_z_err"))})
     rows.sort(key=lambda r: -r["elpd_loo"])
     best = rows[0]
     for r in rows:
@@ -78,6 +77,11 @@ def compare_runs(run_dirs, out=None):
         compare_figure([(s.get("hypothesis") or d.name, dt, s) for d, dt, s in runs],
                        out / "compare.png")
     return Comparison(rows=rows, text=text, out=out)
+
+
+def _number(v):
+    """A number from summary.json, where null (or absent) means not computed: NaN."""
+    return np.nan if v is None else float(v)
 
 
 def _text(rows):
@@ -100,7 +104,9 @@ def _text(rows):
 def _write(rows, out):
     from astropy.table import Table
 
-    (out / "compare.json").write_text(json.dumps({"runs": rows}, indent=2), encoding="utf-8")
+    from .report.tables import write_json
+
+    write_json({"runs": rows}, out / "compare.json")   # ln Z without evidence: null
     cols = ["run", "elpd_loo", "se", "elpd_diff", "se_diff", "log_z", "log_z_err",
             "log_z_diff", "log_z_diff_err", "n_points", "n_bad_k", "max_k", "converged"]
     t = Table(rows=[[r[c] for c in cols] for r in rows], names=cols)

@@ -10,6 +10,8 @@ import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+from scipy import special
+
 from .errors import ConfigError
 from .priors import PRIOR_KINDS, Prior
 
@@ -18,11 +20,13 @@ __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_
 
 VEILS = ("none", "grey", "mie")
 DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter",
-                  "mismatch_amp", "mismatch_scale")
+                  "mismatch_amp", "mismatch_scale", "tio_scale", "haze_scale")
 #: model-mismatch term of a spectrum (teffmc.likelihood.mismatch); the default is the
 #: one a careful user wants for a real star: no grid reproduces it pixel by pixel
 MISMATCH_KINDS = ("none", "white", "correlated")
 DEFAULT_MISMATCH = "correlated"
+SEED_LIMIT = 2**63          # [sampler] seed: 0 <= seed < 2**63 (a signed 64-bit integer)
+MIN_POSITIVE_MASS = 1e-3    # the least prior probability above 0 of a distance or parallax
 
 
 @dataclass(frozen=True)
@@ -63,6 +67,7 @@ class ModelSpec:
     student_nu: float = 4.0
     interp_error: bool = False
     mismatch_terms: tuple = ()    # the kinds of mismatch term the spectra use (set by parse)
+    grid_nuisance: bool = True    # sample the grid's nuisance axes (when it has any)
 
 
 @dataclass(frozen=True)
@@ -92,6 +97,7 @@ class Config:
     parallax_mas: Prior | None = None
     hypotheses: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
+    grids: tuple = ()   # several grids: each is fitted, the results stacked (teffmc.stacking)
 
     @property
     def multi_epoch(self):
@@ -184,6 +190,18 @@ def _prior(r: _Reader, k):
         raise r.err(k, str(exc), args) from None
 
 
+def _mostly_positive(r: _Reader, k, prior):
+    """A normal prior on a distance or parallax is used truncated at 0 (the derived
+    quantities draw its positive part); refuse one with almost nothing above 0."""
+    if prior is None or prior.kind != "normal":
+        return
+    above = float(special.ndtr(prior.mean / prior.sd))
+    if above < MIN_POSITIVE_MASS:
+        raise r.err(k, f"should be > 0 but the normal prior (mean {prior.mean:g}, sd "
+                    f"{prior.sd:g}) puts only {above:.2g} of its probability above 0 (at "
+                    f"least {MIN_POSITIVE_MASS:g} needed)", prior.to_dict())
+
+
 def _cone_deg(r: _Reader, default):
     """Half-angle of the veil's forward cone [degree], in (0, 90]."""
     v = r.positive("scatter_cone_deg", default)
@@ -265,13 +283,25 @@ def parse_config(table, path="<config>"):
     base = path.parent if path.name else Path(".")
     top = _Reader(str(path), table)
     name = top.get("name", str, path.stem)
-    grid = top.get("grid", str, "builtin")
-    if grid not in ("builtin", "blackbody"):
-        gp = Path(grid).expanduser()
-        gp = gp if gp.is_absolute() else base / gp
-        if not gp.exists():
-            raise top.err("grid", f"grid file not found: {gp}", grid)
-        grid = str(gp)
+    grid = top.get("grid", (str, list), "builtin")
+    names = grid if isinstance(grid, list) else [grid]
+    if not names:
+        raise top.err("grid", "should name at least one grid", grid)
+    grids = []
+    for i, g in enumerate(names):
+        key = f"grid[{i}]" if isinstance(grid, list) else "grid"
+        if not isinstance(g, str):
+            raise top.err(key, f"should be a grid name or file but got {g!r}", g)
+        if g not in ("builtin", "blackbody"):
+            gp = Path(g).expanduser()
+            gp = gp if gp.is_absolute() else base / gp
+            if not gp.exists():
+                raise top.err(key, f"grid file not found: {gp}", g)
+            g = str(gp)
+        grids.append(g)
+    if len(set(grids)) != len(grids):
+        raise top.err("grid", f"lists a grid twice: {names}", names)
+    grid = grids[0]
 
     m = top.sub("model") or _Reader(str(path), {}, "model.")
     model = ModelSpec(
@@ -285,6 +315,7 @@ def parse_config(table, path="<config>"):
         likelihood=m.choice("likelihood", ("gaussian", "student_t"), "gaussian"),
         student_nu=m.positive("student_nu", 4.0),
         interp_error=m.get("interp_error", bool, False),
+        grid_nuisance=m.get("grid_nuisance", bool, True),
     )
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
@@ -325,10 +356,20 @@ def parse_config(table, path="<config>"):
     for k in ("n_walkers", "max_steps", "check_every", "n_starts", "checkpoint_every", "nlive"):
         if getattr(sampler, k) <= 0:
             raise s.err(k, f"should be > 0 but got {getattr(sampler, k)}", getattr(sampler, k))
+    # a default min_steps above a small max_steps is the usual short test run (it ends
+    # "not converged"); one the user wrote above max_steps could never be honoured
+    if "min_steps" in s.table and not 0 <= sampler.min_steps <= sampler.max_steps:
+        raise s.err("min_steps", f"should be in [0, max_steps = {sampler.max_steps}] but got "
+                    f"{sampler.min_steps}", sampler.min_steps)
+    if not 0 <= sampler.seed < SEED_LIMIT:  # a signed 64-bit integer, whatever reads it
+        raise s.err("seed", f"should be an integer with 0 <= seed < 2**63 but got "
+                    f"{sampler.seed}", sampler.seed)
     s.done()
 
     distance = _prior(top, "distance_pc")
     parallax = _prior(top, "parallax_mas")
+    _mostly_positive(top, "distance_pc", distance)
+    _mostly_positive(top, "parallax_mas", parallax)
     if parallax is not None:
         if distance is not None:
             raise top.err("parallax_mas", "give distance_pc or parallax_mas, not both")
@@ -369,14 +410,15 @@ def parse_config(table, path="<config>"):
             raise ConfigError("the Student-t likelihood has no mismatch term; set mismatch = "
                               "\"none\" in every spectrum or use gaussian",
                               file=str(path), key=where, value=lik)
-    if sampler.seed < 0:
-        raise ConfigError(f"should be >= 0 but got {sampler.seed}", file=str(path),
-                          key="sampler.seed", value=sampler.seed)
     if distance is not None and distance.support[0] <= 0 and distance.kind != "normal":
         raise top.err("distance_pc", f"should be > 0 but the prior reaches "
                       f"{distance.support[0]:g}", distance.support[0])
     top.done()
-    return Config(path=path, name=name, grid=grid, epochs=tuple(epochs), model=model,
+    if len(grids) > 1 and hyps:
+        raise top.err("grid", "several grids and several hypotheses in one config are not "
+                      "supported: fit the hypotheses with one grid at a time", names)
+    return Config(path=path, name=name, grid=grid, grids=tuple(grids), epochs=tuple(epochs),
+                  model=model,
                   priors=priors, shared=shared, sampler=sampler, distance_pc=distance,
                   parallax_mas=parallax,
                   hypotheses=tuple(hyps), raw=table)

@@ -9,6 +9,8 @@ inverse cumulative distribution, so the priors are exactly those of the fit.
 
 import numpy as np
 
+from .interrupt import DeferredInterrupt
+
 __all__ = ["log_evidence"]
 
 
@@ -43,8 +45,16 @@ def log_evidence(log_post, space, *, seed, nlive=200, dlogz=0.1):
     def transform(u):
         return np.array([pr.ppf(ui) for pr, ui in zip(space.priors, u)])
 
+    # Ctrl-C: held back to the end of the iteration (dynesty would print a traceback);
+    # the "progress" callback, called once an iteration, raises it
+    loglike, transform = DeferredInterrupt(loglike), DeferredInterrupt(transform)
+
+    def between_iterations(*args, **kwargs):
+        loglike.check()
+        transform.check()
+
     sampler = dynesty.NestedSampler(loglike, transform, space.ndim, nlive=nlive,
                                     rstate=np.random.default_rng(seed), sample="rwalk")
-    sampler.run_nested(dlogz=dlogz, print_progress=False)
+    sampler.run_nested(dlogz=dlogz, print_progress=True, print_func=between_iterations)
     res = sampler.results
     return float(res.logz[-1]), float(res.logzerr[-1]), int(np.sum(res.ncall))

@@ -31,16 +31,23 @@ PHOT_SMOOTH_R = 500.0  # resolving power the grid is smoothed to before that sam
 _LN10 = np.log(10.0)
 
 
+def grid_nuisance(grid, p):
+    """``{name: ln(scale)}`` of the grid's nuisance axes sampled in ``p`` (or None)."""
+    out = {n: np.log(p[f"{n}_scale"]) for n in grid.nuisance_names if f"{n}_scale" in p}
+    return out or None
+
+
 def surface_flux(grid, p):
     """Surface flux (n, n_pix) of the photosphere for parameter arrays ``p``.
 
     With cool patches, a fraction ``patch_cover`` of the disc has effective
     temperature ``teff - patch_dteff`` (same log g and [M/H]); both components come
-    from the same grid.
+    from the same grid (and the same grid physics).
     """
-    f = grid.interpolate(p["teff"], p["logg"], p["mh"])
+    nuis = grid_nuisance(grid, p)
+    f = grid.interpolate(p["teff"], p["logg"], p["mh"], nuis)
     if "patch_cover" in p:
-        fc = grid.interpolate(p["teff"] - p["patch_dteff"], p["logg"], p["mh"])
+        fc = grid.interpolate(p["teff"] - p["patch_dteff"], p["logg"], p["mh"], nuis)
         c = p["patch_cover"][:, None]
         f = (1.0 - c) * f + c * fc
     return f
@@ -84,7 +91,7 @@ def observed_flux(grid, dust, p):
     if "patch_cover" in p:         # a two-temperature surface mixes fluxes, not logs
         log = np.log10(surface_flux(grid, p))
     else:
-        log = grid.interpolate_log(p["teff"], p["logg"], p["mh"])
+        log = grid.interpolate_log(p["teff"], p["logg"], p["mh"], grid_nuisance(grid, p))
     log += dust.log10_extinction(p)
     log += np.log10(scale)[:, None]
     log *= _LN10

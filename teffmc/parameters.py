@@ -19,23 +19,28 @@ __all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS", "POSITIVE"]
 ALL_PARAMETERS = ("teff", "logg", "mh", "theta", "a_v", "r_v", "jitter", "veil_tau",
                   "veil_cover", "grain_radius", "veil_scatter", "patch_cover", "patch_dteff",
                   "mismatch_amp", "mismatch_scale")
+#: the built-in grid's nuisance parameters (teffmc.photosphere.nuisance)
+NUISANCE_PARAMETERS = ("tio_scale", "haze_scale")
 #: parameters that enter only through their square or a logarithm: must stay > 0
-POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale")
+POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale",
+            *NUISANCE_PARAMETERS)
 
 UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
          "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
          "patch_cover": "", "patch_dteff": "K", "rv_kms": "km/s", "jitter": "",
-         "distance_pc": "pc", "mismatch_amp": "", "mismatch_scale": "km/s"}
+         "distance_pc": "pc", "mismatch_amp": "", "mismatch_scale": "km/s", "tio_scale": "",
+         "haze_scale": ""}
 LABELS = {"teff": r"$T_\mathrm{eff}$ [K]", "logg": r"$\log g$", "mh": "[M/H]",
           "a_v": r"$A_V$", "r_v": r"$R_V$", "theta": r"$\theta$ [mas]",
           "veil_tau": r"$\tau_\mathrm{veil}$", "veil_cover": r"$f_\mathrm{veil}$",
           "grain_radius": r"$a$ [µm]", "veil_scatter": r"$s_\mathrm{veil}$",
           "patch_cover": r"$f_\mathrm{patch}$", "patch_dteff": r"$\Delta T_\mathrm{patch}$",
           "jitter": "jitter", "distance_pc": "d [pc]",
-          "mismatch_amp": r"$\sigma_\mathrm{mis}$", "mismatch_scale": r"$\rho_\mathrm{mis}$ [km/s]"}
+          "mismatch_amp": r"$\sigma_\mathrm{mis}$", "mismatch_scale": r"$\rho_\mathrm{mis}$ [km/s]",
+          "tio_scale": r"$s_\mathrm{TiO}$", "haze_scale": r"$s_\mathrm{haze}$"}
 
 
-def model_parameters(model, grid_bounds):
+def model_parameters(model, grid_bounds, nuisance=()):
     """Names and default priors of the parameters of a model variant.
 
     Parameters
@@ -43,6 +48,9 @@ def model_parameters(model, grid_bounds):
     model : teffmc.config.ModelSpec
     grid_bounds : dict
         ``{axis: (low, high)}`` of the photosphere grid.
+    nuisance : sequence of NuisanceAxis
+        The grid's nuisance axes (sampled as ``<name>_scale`` when
+        ``model.grid_nuisance``).
     """
     def axis_prior(axis):  # a grid with one node on an axis fixes that parameter
         lo, hi = grid_bounds[axis]
@@ -75,6 +83,10 @@ def model_parameters(model, grid_bounds):
         # decades: where the data do not constrain it (a grid that fits), a wider prior
         # only lengthens the chain.
         p["mismatch_scale"] = Prior("loguniform", low=100.0, high=10000.0)
+    if getattr(model, "grid_nuisance", True):
+        for a in nuisance:
+            # the grid's own declared range of the uncertain input (see its note)
+            p[a.parameter] = Prior("loguniform", low=a.low, high=a.high)
     if model.patches:
         p["patch_cover"] = Prior("uniform", low=0.0, high=0.9)
         p["patch_dteff"] = Prior("uniform", low=0.0, high=1500.0)
@@ -91,17 +103,21 @@ class _Slot:
 class ParameterSpace:
     """The mapping between a flat sampled vector and named per-epoch parameters."""
 
-    def __init__(self, config, grid_bounds, *, other_models=()):
-        defaults = model_parameters(config.model, grid_bounds)
+    def __init__(self, config, grid_bounds, *, other_models=(), nuisance=()):
+        defaults = model_parameters(config.model, grid_bounds, nuisance)
         # priors for parameters of sibling hypotheses are allowed (and unused) here
         sibling = set()
         for m in other_models:
-            sibling |= set(model_parameters(m, grid_bounds))
+            sibling |= set(model_parameters(m, grid_bounds, nuisance))
+        known = set(ALL_PARAMETERS) | {a.parameter for a in nuisance}
+        #: the grid-physics nuisance parameters of this fit (their "_scale" names)
+        self.nuisance_params = tuple(a.parameter for a in nuisance
+                                     if getattr(config.model, "grid_nuisance", True))
         file = str(config.path)
         labels = [e.label for e in config.epochs]
         multi = len(labels) > 1
         for s in config.shared:
-            if s not in ALL_PARAMETERS:
+            if s not in known and s not in NUISANCE_PARAMETERS:
                 raise ConfigError(f"{s!r} is not a parameter name (names: "
                                   f"{', '.join(ALL_PARAMETERS)})",
                                   file=file, key="shared", value=s)

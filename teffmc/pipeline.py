@@ -16,6 +16,7 @@ from .derived import bolometric
 from .goodness import cautions as gof_cautions
 from .goodness import BAD_CHI2_NU, goodness_of_fit
 from .model import Dust, band_pixels, observed_flux
+from .priors import Prior
 from .report import corner_figure, fit_figure, write_summary
 from .tomlout import dumps_toml
 
@@ -118,21 +119,11 @@ def derived_quantities(prep, flat, rng):
     cfg, space = prep.config, prep.space
     dist = None
     if cfg.distance_pc is not None:
-        dist = cfg.distance_pc.sample(rng, flat.shape[0]) if not cfg.distance_pc.fixed else \
-            np.full(flat.shape[0], cfg.distance_pc.value)
-        while np.any(dist <= 0):  # a normal prior's unphysical tail: redraw (truncation)
-            bad = dist <= 0
-            dist[bad] = cfg.distance_pc.sample(rng, int(bad.sum()))
+        dist = _positive_draws(cfg.distance_pc, rng, flat.shape[0])
     elif cfg.parallax_mas is not None:
         # distance = 1000 / parallax [pc, mas]; the data do not constrain it, so drawing it
-        # from its prior on every draw is the exact joint posterior. Non-positive draws of
-        # a normal parallax prior are dropped by redrawing.
-        plx = (np.full(flat.shape[0], cfg.parallax_mas.value) if cfg.parallax_mas.fixed
-               else cfg.parallax_mas.sample(rng, flat.shape[0]))
-        while np.any(plx <= 0):
-            bad = plx <= 0
-            plx[bad] = cfg.parallax_mas.sample(rng, int(bad.sum()))
-        dist = 1000.0 / plx
+        # from its prior on every draw is the exact joint posterior
+        dist = 1000.0 / _positive_draws(cfg.parallax_mas, rng, flat.shape[0])
     vband = VBand(prep.grid, cfg.model, space.prior_cover("r_v"))
     out = {}
     for label in space.labels:
@@ -155,6 +146,20 @@ def derived_quantities(prep, flat, rng):
     if dist is not None:
         out["distance_pc"] = dist
     return out
+
+
+def _positive_draws(prior, rng, n):
+    """n draws of a distance or parallax prior restricted to > 0.
+
+    A normal prior is drawn from its positive part directly, by the inverse CDF of the
+    normal truncated at 0: bounded time whatever its mass below 0 (redrawing the
+    non-positive draws took ~1/P(x > 0) rounds; config.py refuses P(x > 0) < 1e-3).
+    """
+    if prior.fixed:
+        return np.full(n, prior.value)
+    if prior.kind == "normal":
+        prior = Prior("truncnormal", mean=prior.mean, sd=prior.sd, low=0.0, high=math.inf)
+    return prior.sample(rng, n)
 
 
 def _take(p, idx):
@@ -288,6 +293,7 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
         summary["evidence"] = {"log_z": logz, "log_z_err": logz_err, "n_calls": ncall,
                                "method": "nested sampling (dynesty)"}
         log(f"evidence: ln Z = {logz:.2f} +- {logz_err:.2f} ({ncall} likelihood calls)")
+    _add_stat_intervals(summary, space, flat, derived)
     write_summary(summary, folder / "summary.json", folder / "summary.ecsv")
     (folder / "run.toml").write_text(dumps_toml(record), encoding="utf-8")
     log("figures")
@@ -304,6 +310,23 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
     return dt, summary
 
 
+def _add_stat_intervals(summary, space, flat, derived):
+    """Beside each interval, the one with the grid-physics nuisances at nominal."""
+    from .systematics import stat_summary
+
+    cols = [i for i, n in enumerate(space.names) if n.partition("@")[0] in space.nuisance_params]
+    if not cols:
+        return
+    x = np.log(flat[:, cols])
+    summary["nuisance"] = [space.names[i] for i in cols]
+    for i, name in enumerate(space.names):
+        if i not in cols:
+            summary["parameters"][name].update(stat_summary(flat[:, i], x))
+    for name, v in derived.items():
+        if name in summary["derived"]:
+            summary["derived"][name].update(stat_summary(v.reshape(-1), x))
+
+
 def data_checksum(prep):
     """SHA-256 of the data actually fitted (pixels, fluxes, errors, bands)."""
     import hashlib
@@ -313,6 +336,11 @@ def data_checksum(prep):
         h.update(label.encode())
         for ch in chans:
             h.update(ch.name.encode())
-            for a in (ch.data, ch.err, getattr(ch, "wave", np.zeros(0))):
+            # the data's own pixels; photometry by its bands (its model pixels belong to
+            # the grid, and runs with different grids fit the same data)
+            x = ch.wave if ch.kind == "spectrum" else np.zeros(0)
+            for a in (ch.data, ch.err, x):
                 h.update(np.ascontiguousarray(a, "<f8").tobytes())
+            if ch.kind == "photometry":
+                h.update("|".join(ch.bands).encode())
     return h.hexdigest()

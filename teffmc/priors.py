@@ -42,6 +42,10 @@ class Prior:
             raise ValueError(f"loguniform low should be > 0 but got {self.low}")
         if self.kind in ("normal", "truncnormal") and self.sd <= 0:
             raise ValueError(f"sd should be > 0 but got {self.sd}")
+        if self.kind == "truncnormal" and not math.isfinite(_log_mass(*self._ab())):
+            raise ValueError(f"[low, high] = [{self.low:g}, {self.high:g}] lies so far from "
+                             f"mean {self.mean:g} (sd {self.sd:g}) that its probability "
+                             "underflows; give a mean nearer the bounds")
 
     @property
     def fixed(self):
@@ -69,9 +73,12 @@ class Prior:
             z = (x - self.mean) / self.sd
             lp = -0.5 * z**2 - math.log(self.sd * math.sqrt(2 * math.pi))
             if self.kind == "truncnormal":
-                a, b = ((self.low - self.mean) / self.sd, (self.high - self.mean) / self.sd)
-                lp = lp - math.log(special.ndtr(b) - special.ndtr(a))
+                lp = lp - _log_mass(*self._ab())
         return np.where(inside, lp, -np.inf)
+
+    def _ab(self):
+        """A truncnormal's bounds in standard deviations from the mean."""
+        return (self.low - self.mean) / self.sd, (self.high - self.mean) / self.sd
 
     def ppf(self, u):
         """Inverse cumulative distribution: maps uniform u in (0, 1) to the prior."""
@@ -82,9 +89,12 @@ class Prior:
             return self.low * (self.high / self.low) ** u
         if self.kind == "normal":
             return self.mean + self.sd * special.ndtri(u)
-        a, b = special.ndtr((self.low - self.mean) / self.sd), special.ndtr(
-            (self.high - self.mean) / self.sd)
-        return self.mean + self.sd * special.ndtri(a + u * (b - a))
+        a, b = self._ab()
+        if a > 0:  # [a, b] above the mean, Phi(a) ~ 1: invert the mirror image, -z in [-b, -a]
+            z = -_ppf_left(1.0 - u, -b, -a)
+        else:
+            z = _ppf_left(u, a, b)
+        return np.clip(self.mean + self.sd * z, self.low, self.high)
 
     def sample(self, rng, n):
         return self.ppf(rng.uniform(0.0, 1.0, n))
@@ -93,3 +103,26 @@ class Prior:
         if self.fixed:
             return {"fixed": self.value}
         return {"dist": self.kind, **{k: getattr(self, k) for k in PRIOR_KINDS[self.kind]}}
+
+
+def _log_mass(a, b):
+    """ln(Phi(b) - Phi(a)) of the standard normal, a < b, also far in either tail."""
+    if a + b > 0:
+        a, b = -b, -a   # the same mass mirrored, so both ends lie at or below the centre
+    la, lb = special.log_ndtr(a), special.log_ndtr(b)
+    if lb == -np.inf:  # underflows even in logarithms (b ~ -1e154): no usable mass
+        return -math.inf
+    return float(lb + np.log(-np.expm1(la - lb)))
+
+
+def _ppf_left(u, a, b):
+    """Inverse CDF of the standard normal truncated to [a, b] with a <= 0.
+
+    Phi(a) + u (Phi(b) - Phi(a)) is formed in logarithms and inverted by ``ndtri_exp``,
+    so it stays exact where Phi underflows (a = -60: Phi(a) ~ 1e-785); the same
+    construction as scipy.stats.truncnorm (tests/test_bad_inputs_more.py compares them).
+    """
+    la = special.log_ndtr(a)
+    with np.errstate(divide="ignore"):  # u = 0 gives ln u = -inf, i.e. z = a
+        lp = np.logaddexp(la, np.log(u) + _log_mass(a, b))
+    return special.ndtri_exp(np.minimum(lp, 0.0))

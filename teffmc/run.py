@@ -19,7 +19,7 @@ from threadpoolctl import threadpool_limits
 from . import __version__
 from .config import load_config
 from .constants import C_KMS
-from .errors import ConfigError, DataError
+from .errors import ConfigError, DataError, TeffmcError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
 from .parameters import ParameterSpace
@@ -90,7 +90,9 @@ def prepare(config, grid=None, log=print, other_models=()):
 
     cfg = config if not isinstance(config, (str, Path)) else load_config(config)
     grid = grid if grid is not None else load_grid(cfg.grid)
-    space = ParameterSpace(cfg, grid.bounds, other_models=other_models)
+    space = ParameterSpace(cfg, grid.bounds, other_models=other_models,
+                           nuisance=getattr(grid, "nuisance", ()))
+    require_free_parameters(space, cfg)
     channels = {}
     for ep in cfg.epochs:
         r_v_prior = space.prior_of("r_v", ep.label)
@@ -118,6 +120,21 @@ def prepare(config, grid=None, log=print, other_models=()):
     return Prepared(cfg, grid, space, channels, Posterior(space, channels, grid))
 
 
+def require_free_parameters(space, cfg):
+    """Refuse a model whose parameters are all fixed: there is nothing to sample."""
+    if space.ndim == 0:
+        raise ConfigError("every parameter is fixed, so there is nothing to sample: give at "
+                          "least one parameter a distribution (fixed: " + ", ".join(
+                              f"{k}={v:g}" for k, v in space.fixed_values().items()) + ")",
+                          file=str(cfg.path), key="priors", value=space.fixed_values())
+
+
+def default_out(config_path):
+    """The run folder of ``teffmc fit CONFIG`` without ``--out``: run-<stem> beside it."""
+    config_path = Path(config_path)
+    return config_path.parent / f"run-{config_path.stem}"
+
+
 def fit(config, out=None, *, resume=False, quiet=False):
     """Run the main job on a config file; write and return the run.
 
@@ -136,13 +153,20 @@ def fit(config, out=None, *, resume=False, quiet=False):
         No progress bar and no log lines on stderr.
     """
     cfg = config if not isinstance(config, (str, Path)) else load_config(config)
-    out = Path(out) if out is not None else cfg.path.parent / f"run-{cfg.path.stem}"
+    out = Path(out) if out is not None else default_out(cfg.path)
+    if len(cfg.grids) > 1:
+        return fit_grids(cfg, out, resume=resume, quiet=quiet)
     variants = cfg.variants()
     if len(variants) == 1:
         return fit_one(cfg, out, resume=resume, quiet=quiet)
     from .compare import compare_runs
+    from .photosphere import load_grid
 
     models = [v.model for _, v in variants]
+    grid = load_grid(cfg.grid)
+    for _, v in variants:  # before the first variant's folder is made
+        require_free_parameters(ParameterSpace(v, grid.bounds, other_models=models,
+                                               nuisance=getattr(grid, "nuisance", ())), v)
     results = {}
     for name, v in variants:
         d = out / name
@@ -170,6 +194,50 @@ def fit(config, out=None, *, resume=False, quiet=False):
     return best
 
 
+def grid_label(grid):
+    """A folder-safe short name of a grid (``builtin``, ``blackbody`` or the file stem)."""
+    return grid if grid in ("builtin", "blackbody") else Path(grid).stem
+
+
+def fit_grids(cfg, out, *, resume=False, quiet=False):
+    """Fit the same data with every grid of ``cfg.grids`` into ``OUT/grid-<name>/`` and
+    stack them (teffmc.stacking): ``OUT/stack.json`` and ``OUT/stack.ecsv`` hold the
+    weights, each grid's intervals and the combined ones. Returns the highest-weight run
+    with ``.comparison`` set to the stacking result (a dict as stack.json)."""
+    from dataclasses import replace as _replace
+
+    from .stacking_run import stack_runs
+
+    labels = [grid_label(g) for g in cfg.grids]
+    if len(set(labels)) != len(labels):
+        raise ConfigError(f"two grids have the same name {labels}; rename a file",
+                          file=str(cfg.path), key="grid", value=labels)
+    results = {}
+    for g, lab in zip(cfg.grids, labels):
+        d = out / f"grid-{lab}"
+        partial = d.with_name(d.name + ".partial") / "chain.h5"
+        if resume and not partial.exists() and (d / "summary.json").exists():
+            continue
+        if not quiet:
+            print(f"== grid {lab}", file=sys.stderr)
+        results[lab] = fit_one(_replace(cfg, grid=g, grids=(g,)), d,
+                               resume=resume and partial.exists(), quiet=quiet)
+    stack = stack_runs([out / f"grid-{lab}" for lab in labels], labels, out,
+                       seed=cfg.sampler.seed)
+    if not quiet:
+        print(stack["text"], file=sys.stderr)
+    best = max(stack["weights"], key=stack["weights"].get)
+    if best in results:
+        res = results[best]
+    else:
+        from .posterior import load_run
+
+        dt, summ = load_run(out / f"grid-{best}")
+        res = FitResult(summary=summ, posterior=dt, out=out / f"grid-{best}")
+    res.comparison = stack
+    return res
+
+
 def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothesis=None):
     """Fit one model variant into the run folder ``out`` (see :func:`fit`)."""
     from .pipeline import finish_run, sample_posterior
@@ -185,6 +253,7 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
                           file=str(cfg.path), key="--resume")
     if not resume and partial.exists():
         shutil.rmtree(partial)
+    made = [p for p in partial.parents if not p.exists()]  # folders made for it, inner first
     partial.mkdir(parents=True, exist_ok=True)
     log(f"teffmc {__version__}: fitting {cfg.path} with {prep.space.ndim} free parameters: "
         f"{', '.join(prep.space.names)}")
@@ -195,9 +264,17 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
             result = sample_posterior(prep, partial / "chain.h5", resume=resume, quiet=quiet,
                                       log=log)
         dt, summary = finish_run(prep, result, partial, log=log, hypothesis=hypothesis)
-    except BaseException:
-        # keep the checkpoint for --resume; the folder is clearly marked partial
-        (partial / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
+    except BaseException as exc:
+        if (partial / "chain.h5").exists() or not isinstance(exc, (KeyboardInterrupt,
+                                                                    TeffmcError)):
+            # keep the checkpoint for --resume (or an internal error's log); the folder is
+            # clearly marked partial
+            (partial / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
+        else:  # interrupted or refused before the first checkpoint: nothing to resume
+            shutil.rmtree(partial, ignore_errors=True)
+            for p in made:
+                if p.is_dir() and not any(p.iterdir()):
+                    p.rmdir()
         raise
     (partial / "chain.h5").unlink(missing_ok=True)
     if out.exists():
@@ -207,11 +284,43 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
 
 
 def check_out_folder(out):
-    """Refuse to replace a folder that is not a teffmc run (it would be deleted)."""
+    """Refuse an ``--out`` that cannot become a run folder, before anything is computed:
+    a path that is not a folder, one whose parent cannot be written (``OUT.partial`` is
+    made beside it), or a folder that is not a teffmc run (it would be deleted)."""
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"{out} exists and is not a folder: choose another --out",
+                          key="--out", value=str(out))
+    _check_writable(out.parent, out)
     if out.exists() and any(out.iterdir()) and not (
             (out / "summary.json").exists() or (out / "posterior.nc").exists()):
         raise ConfigError("exists and is not a teffmc run folder; it would be replaced: "
                           "choose another --out", key="--out", value=str(out))
+
+
+def _check_writable(folder, out):
+    """The nearest existing folder on the way to ``folder`` accepts a new folder.
+
+    Tried by making (and removing) a temporary folder: ``os.access`` says yes to root on
+    any folder, and on file systems that refuse new entries anyway (/proc, /sys).
+    """
+    import tempfile
+
+    here = folder
+    while not here.exists() and here != here.parent:
+        here = here.parent
+    if not here.is_dir():
+        raise ConfigError(f"cannot make {out}: {here} is not a folder; choose another --out",
+                          key="--out", value=str(out))
+    try:
+        tempfile.TemporaryDirectory(dir=here, prefix=".teffmc-probe-").cleanup()
+    except OSError as exc:
+        raise ConfigError(f"cannot make {out}: cannot write in {here} ({exc.strerror or exc}); "
+                          "choose another --out", key="--out", value=str(out)) from None
+
+
+def _fmt(v, spec):
+    """``format(v, spec)``, or "n/a" for a number summary.json holds as null (NaN)."""
+    return "n/a" if v is None else format(v, spec)
 
 
 def summary_to_text(summary):
@@ -221,13 +330,16 @@ def summary_to_text(summary):
         lines.append(f"CAUTION: not converged ({summary['reason']}); do not quote these numbers.")
     for group in ("parameters", "derived"):
         for name, s in summary.get(group, {}).items():
-            lines.append(f"{name:>18s} = {s['median']:.6g} (+{s['p84'] - s['median']:.3g} "
-                         f"-{s['median'] - s['p16']:.3g})  r_hat {s['r_hat']:.3f}  "
-                         f"ess {s['ess_bulk']:.0f}")
+            med, lo, hi = s["median"], s["p16"], s["p84"]
+            if None in (med, lo, hi):  # read back from summary.json, where NaN is null
+                lines.append(f"{name:>18s} = n/a")
+                continue
+            lines.append(f"{name:>18s} = {med:.6g} (+{hi - med:.3g} -{med - lo:.3g})  "
+                         f"r_hat {_fmt(s['r_hat'], '.3f')}  ess {_fmt(s['ess_bulk'], '.0f')}")
     for key, g in summary.get("goodness_of_fit", {}).items():
-        flag = "  BAD FIT" if g["chi2_nu"] > 2.0 else ""
-        lines.append(f"fit of {key}: chi2/nu {g['chi2_nu']:.2f} over {g['n_points']} points, "
-                     f"rms {g['rms_sigma']:.2f} sigma{flag}")
+        flag = "  BAD FIT" if g["chi2_nu"] is not None and g["chi2_nu"] > 2.0 else ""
+        lines.append(f"fit of {key}: chi2/nu {_fmt(g['chi2_nu'], '.2f')} over "
+                     f"{g['n_points']} points, rms {_fmt(g['rms_sigma'], '.2f')} sigma{flag}")
     return "\n".join(lines)
 
 

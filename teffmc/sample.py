@@ -17,6 +17,7 @@ import emcee
 import numpy as np
 
 from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
+from teffmc.interrupt import DeferredInterrupt
 from teffmc.sampling_checkpoint import memory_backend, resume_state, write_checkpoint
 from teffmc.sampling_start import find_start, initial_ball
 from teffmc.sampling_stop import autocorr_time, burn_thin, split_rhat, stop_rule
@@ -255,7 +256,8 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
             seed = int(np.random.SeedSequence().generate_state(1, np.uint32)[0])
         state = _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale)
         backend = emcee.backends.Backend()
-    sampler = emcee.EnsembleSampler(n_walkers, ndim, log_prob, vectorize=True,
+    interrupt = DeferredInterrupt(log_prob)  # Ctrl-C: stop between steps, no emcee traceback
+    sampler = emcee.EnsembleSampler(n_walkers, ndim, interrupt, vectorize=True,
                                     moves=default_moves() if moves is None else moves,
                                     backend=backend)
     n = n_saved = backend.iteration if saved is not None else 0
@@ -288,6 +290,7 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
             steps = sampler.sample(state, iterations=target - n)
             for state in steps:  # noqa: B007 - the last state carries on
                 bar.update(1)
+                interrupt.check()
             n = target
             if checkpoint:
                 write_checkpoint(checkpoint, sampler.get_chain(), sampler.get_log_prob(),

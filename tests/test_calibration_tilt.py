@@ -19,8 +19,7 @@ CONFIG = """\
 grid = "builtin"
 [[epoch]]
 photometry = "t_phot.ecsv"
-spectra = [{{ file = "t_spec.ecsv", resolution = 500.0, calibration_order = {order},
-             mismatch = "none" }}]
+spectra = [{{ file = "t_spec.ecsv", resolution = 500.0, calibration_order = {order}, mismatch = "none" }}]
 [priors]
 teff = {{ dist = "uniform", low = 3300, high = 4200 }}
 logg = {{ fixed = 0.0 }}

@@ -19,6 +19,27 @@ def test_build_is_reproducible_and_readable(tmp_path):
         pytest.fail(f"re-read grid differs or has holes: {back.holes}")
     if not float(back.provenance["energy_max_abs_deviation"]) < 0.03:
         pytest.fail("energy check of the small build failed")
+    # the nuisance axes are part of the file and of the reproducible build
+    assert back.nuisance_names == ("tio", "haze")
+    from teffmc.photosphere.nuisance import nuisance_checksum
+    assert nuisance_checksum(g1.nuisance) == nuisance_checksum(g2.nuisance)
+
+
+def test_tio_axis_deepens_the_7054_band(tmp_path):
+    """Twice the TiO opacity deepens the TiO 7054 A band head at 3600 K (its depth grows
+    with the band opacity: curve of growth, common practice, no source)."""
+
+    g = build_grid(tmp_path / "n.h5", workers=1, teff=[3600.0], logg=[0.0], mh=[0.0])
+    a = g.nuisance[0]
+    w = g.wave
+    band = (w > 7060) & (w < 7100)      # vacuum, just redward of the head
+    cont = (w > 7030) & (w < 7045)
+
+    def depth(lf):
+        f = 10.0 ** lf[0, 0, 0]
+        return 1 - f[band].mean() / f[cont].mean()
+
+    assert depth(a.minus) < depth(g.log_flux) < depth(a.plus)
 
 
 def test_workers_validated(tmp_path):

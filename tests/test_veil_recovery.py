@@ -39,8 +39,7 @@ def veil_run(tmp_path_factory):
         grain_spread_dex = 0.1
         [[epoch]]
         photometry = "v_phot.ecsv"
-        spectra = [{ file = "v_spec.ecsv", resolution = 300.0, telluric_mask = false,
-                     mismatch = "none" }]
+        spectra = [{ file = "v_spec.ecsv", resolution = 300.0, telluric_mask = false, mismatch = "none" }]
         [priors]
         teff = { dist = "uniform", low = 3000, high = 5000 }
         logg = { fixed = 0.0 }

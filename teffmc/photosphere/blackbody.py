@@ -72,7 +72,10 @@ class BlackbodyGrid:
             ok &= (v >= self.bounds[ax][0]) & (v <= self.bounds[ax][1])
         return ok
 
-    def interpolate(self, teff, logg, mh):
+    nuisance = ()            # a Planck curve has no uncertain physics
+    nuisance_names = ()
+
+    def interpolate(self, teff, logg, mh, nuisance=None):
         teff, logg, mh = np.broadcast_arrays(
             *(np.atleast_1d(np.asarray(v, float)) for v in (teff, logg, mh)))
         inside = self.check_inside(teff, logg, mh)
@@ -81,7 +84,7 @@ class BlackbodyGrid:
             raise OffGridError({"teff": teff[k], "logg": logg[k], "mh": mh[k]}, self.bounds)
         return planck_surface_flux(self.wave, teff)
 
-    def interpolate_log(self, teff, logg, mh):
+    def interpolate_log(self, teff, logg, mh, nuisance=None):
         return np.log10(self.interpolate(teff, logg, mh))
 
     def spectrum(self, teff, logg=0.0, mh=0.0):

@@ -21,7 +21,7 @@ hole raises it too (interpolation never silently crosses a hole).
 """
 
 import hashlib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.sparse import csr_matrix
@@ -82,6 +82,7 @@ class Grid:
     log_flux: np.ndarray
     provenance: dict = field(default_factory=dict)
     name: str = "grid"
+    nuisance: tuple = ()   #: NuisanceAxis, see teffmc.photosphere.nuisance
 
     def __post_init__(self):
         for ax in (*AXES, "wave"):
@@ -98,6 +99,16 @@ class Grid:
             bad = tuple(int(i) for i in np.argwhere(partial)[0])
             raise GridError(f"node {self.node_params(bad)} has some non-finite fluxes")
         object.__setattr__(self, "_present", nodes_ok)
+        object.__setattr__(self, "nuisance", tuple(self.nuisance))
+        for a in self.nuisance:
+            if np.shape(a.minus) != shape or np.shape(a.plus) != shape:
+                raise GridError(f"nuisance {a.name}: cubes have shape {np.shape(a.minus)}, "
+                                f"expected {shape}")
+
+    @property
+    def nuisance_names(self):
+        """Names of the grid's nuisance axes (parameters ``<name>_scale``)."""
+        return tuple(a.name for a in self.nuisance)
 
     # ------------------------------------------------------------------ description
     @property
@@ -162,8 +173,11 @@ class Grid:
                 ok &= self._present[tuple(sel)] | ~weight
         return ok
 
-    def interpolate_log(self, teff, logg, mh):
+    def interpolate_log(self, teff, logg, mh, nuisance=None):
         """log10 surface flux at a batch of points, shape (n, n_wave).
+
+        ``nuisance``: ``{name: x}`` with x = ln(scale) arrays (n,) for the grid's
+        nuisance axes (missing names: nominal physics, x = 0).
 
         Raises
         ------
@@ -191,7 +205,28 @@ class Grid:
         keep = wts != 0.0
         indptr = np.concatenate([[0], np.cumsum(keep.sum(axis=1))])
         weights = csr_matrix((wts[keep], idx[keep], indptr), shape=(teff.size, nt * ng * nm))
-        return np.asarray(weights @ self._flat())
+        out = np.asarray(weights @ self._flat())
+        for a, (d1, d2) in zip(self.nuisance, self._responses()):
+            x = None if nuisance is None else nuisance.get(a.name)
+            if x is None:
+                continue
+            x = np.broadcast_to(np.asarray(x, float), (teff.size,))[:, None]
+            out += x * np.asarray(weights @ d1) + (0.5 * x * x) * np.asarray(weights @ d2)
+        return out
+
+    def _responses(self):
+        """[(D1, D2)] flat (n_models, n_wave) per nuisance axis, made once."""
+        from .nuisance import responses
+
+        cached = self.__dict__.get("_flat_responses")
+        if cached is None:
+            base = self.log_flux.reshape(-1, self.wave.size).astype(float)
+            cached = []
+            for a in self.nuisance:
+                d1, d2 = responses(base, _Flat(a, self.wave.size))
+                cached.append((np.ascontiguousarray(d1), np.ascontiguousarray(d2)))
+            object.__setattr__(self, "_flat_responses", cached)
+        return cached
 
     def _flat(self):
         """log_flux as a C-contiguous float64 (n_models, n_wave) matrix, made once."""
@@ -201,9 +236,9 @@ class Grid:
             object.__setattr__(self, "_flat_log_flux", flat)
         return flat
 
-    def interpolate(self, teff, logg, mh):
+    def interpolate(self, teff, logg, mh, nuisance=None):
         """Surface F_lambda [erg s^-1 cm^-2 Angstrom^-1] at a batch of points, (n, n_wave)."""
-        out = self.interpolate_log(teff, logg, mh)
+        out = self.interpolate_log(teff, logg, mh, nuisance)
         out *= _LN10            # exp(ln 10 x) is ~4x faster than 10 ** x
         return np.exp(out, out=out)
 
@@ -219,28 +254,35 @@ class Grid:
         ``resolution`` (or FWHM ``fwhm_A``) and resampled, once for all nodes: this is
         the per-run precomputation, so that sampling only interpolates on the pixels.
         """
-        from ..observe.lsf import convolve_resample
-
         wave = np.asarray(wave, float)
         if wave[0] < self.wave[0] or wave[-1] > self.wave[-1]:
             raise GridError(
                 f"grid {self.name!r} covers {self.wave[0]:.1f}-{self.wave[-1]:.1f} Angstrom "
                 f"but the data need {wave[0]:.1f}-{wave[-1]:.1f} Angstrom")
+        def cube(lf):
+            return self._cube_on_pixels(lf, wave, resolution, fwhm_A)
+
+        axes = tuple(replace(a, minus=cube(a.minus), plus=cube(a.plus)) for a in self.nuisance)
+        return Grid(self.teff, self.logg, self.mh, wave, cube(self.log_flux), self.provenance,
+                    self.name, axes)
+
+    def _cube_on_pixels(self, log_flux, wave, resolution, fwhm_A):
+        """One (n_teff, n_logg, n_mh, n_wave) log-flux cube on the pixels ``wave``."""
+        from ..observe.lsf import convolve_resample
+
         if resolution is None and fwhm_A is None:
             # no line-spread function: slice when the pixels are the grid's own,
             # else interpolate log flux linearly in wavelength
             i = np.searchsorted(self.wave, wave)
             if np.array_equal(self.wave[np.minimum(i, self.wave.size - 1)], wave):
-                log_res = self.log_flux[..., i]
-            else:
-                j = np.clip(i - 1, 0, self.wave.size - 2)
-                w = (wave - self.wave[j]) / (self.wave[j + 1] - self.wave[j])
-                log_res = (1 - w) * self.log_flux[..., j] + w * self.log_flux[..., j + 1]
-            return Grid(self.teff, self.logg, self.mh, wave, log_res, self.provenance, self.name)
-        flux = np.where(self._present[..., None], 10.0 ** self.log_flux.astype(float), 1.0)
+                return log_flux[..., i]
+            j = np.clip(i - 1, 0, self.wave.size - 2)
+            w = (wave - self.wave[j]) / (self.wave[j + 1] - self.wave[j])
+            return (1 - w) * log_flux[..., j] + w * log_flux[..., j + 1]
+        present = np.all(np.isfinite(log_flux), axis=-1)
+        flux = np.where(present[..., None], 10.0 ** np.asarray(log_flux, float), 1.0)
         res = convolve_resample(self.wave, flux, wave, resolution=resolution, fwhm_A=fwhm_A)
-        log_res = np.where(self._present[..., None], np.log10(res), np.nan)
-        return Grid(self.teff, self.logg, self.mh, wave, log_res, self.provenance, self.name)
+        return np.where(present[..., None], np.log10(res), np.nan)
 
     # ------------------------------------------------------------------ file I/O
     def write(self, path):
@@ -262,6 +304,20 @@ class Grid:
             g = f.create_group("provenance")
             for k, v in self.provenance.items():
                 g.attrs[k] = v
+            if self.nuisance:
+                from .nuisance import nuisance_checksum
+
+                n = f.create_group("nuisance")
+                n.attrs["checksum"] = nuisance_checksum(self.nuisance)
+                n.attrs["order"] = ",".join(self.nuisance_names)
+                for a in self.nuisance:
+                    ga = n.create_group(a.name)
+                    for k in ("step", "low", "high", "note"):
+                        ga.attrs[k] = getattr(a, k)
+                    for k in ("minus", "plus"):
+                        ga.create_dataset(k, data=np.asarray(getattr(a, k), "<f4"),
+                                          compression="gzip", compression_opts=6, shuffle=True,
+                                          chunks=(1, 1, 1, lf.shape[-1]))
 
     @classmethod
     def read(cls, path):
@@ -275,9 +331,39 @@ class Grid:
                 arrays = {k: f[k][...] for k in (*AXES, "wave", "log_flux")}
                 prov = {k: str(v) for k, v in f["provenance"].attrs.items()}
                 name, checksum = str(f.attrs["name"]), str(f.attrs["checksum"])
+                axes, nuis_sum = _read_nuisance(f)
         except (OSError, KeyError) as exc:
             raise GridError(f"{path}: cannot read grid file ({exc})") from None
-        grid = cls(**arrays, provenance=prov, name=name)
+        grid = cls(**arrays, provenance=prov, name=name, nuisance=axes)
         if grid_checksum(*(arrays[k] for k in (*AXES, "wave", "log_flux"))) != checksum:
             raise GridError(f"{path}: checksum mismatch, the file is corrupt or was edited")
+        if axes:
+            from .nuisance import nuisance_checksum
+
+            if nuisance_checksum(axes) != nuis_sum:
+                raise GridError(f"{path}: nuisance checksum mismatch, the file is corrupt or "
+                                "was edited")
         return grid
+
+
+def _read_nuisance(f):
+    """The nuisance axes stored in an open grid file, and their checksum."""
+    from .nuisance import NuisanceAxis
+
+    if "nuisance" not in f:
+        return (), None
+    n = f["nuisance"]
+    axes = tuple(NuisanceAxis(name=k, step=float(g.attrs["step"]), minus=g["minus"][...],
+                              plus=g["plus"][...], low=float(g.attrs["low"]),
+                              high=float(g.attrs["high"]), note=str(g.attrs["note"]))
+                 for k, g in ((k, n[k]) for k in str(n.attrs["order"]).split(",")))
+    return axes, str(n.attrs["checksum"])
+
+
+class _Flat:
+    """A nuisance axis with its cubes viewed as (n_models, n_wave) float64 matrices."""
+
+    def __init__(self, axis, n_wave):
+        self.step = axis.step
+        self.minus = np.asarray(axis.minus, float).reshape(-1, n_wave)
+        self.plus = np.asarray(axis.plus, float).reshape(-1, n_wave)

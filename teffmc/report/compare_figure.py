@@ -4,7 +4,7 @@ import json
 
 import numpy as np
 
-from .figures import _label, _plt, gapped
+from .figures import _label, _plt, gapped, plain_text
 
 __all__ = ["compare_figure"]
 
@@ -39,8 +39,9 @@ def compare_figure(runs, path, max_params=4):
             ax.hist(x, bins=40, density=True, histtype="step", color=c, label=name)
         ax.set_xlabel(_label(par))
         ax.set_yticks([])
-    if shared:
-        fig.axes[0].legend(fontsize=7)
+    if shared:  # run names are folder names: drawn as typed, never as mathtext
+        for t in fig.axes[0].legend(fontsize=7).get_texts():
+            plain_text(t)
     for i, ((name, _, summ), pan) in enumerate(zip(runs, panels)):
         ax = fig.add_subplot(gs[1 + 2 * i, :])
         rax = fig.add_subplot(gs[2 + 2 * i, :], sharex=ax)
@@ -52,9 +53,10 @@ def compare_figure(runs, path, max_params=4):
         ax.plot(x, med, style, color=c, lw=0.8, ms=3, mfc="none", label=f"{name}: model")
         rax.plot(x, (data - med) / err, style, color=c, lw=0.5, ms=3)
         rax.axhline(0, color="0.5", lw=0.5)
-        ax.set_title(f"{name}: {pan['label']}" + ("" if summ["converged"]
-                                                   else "  (NOT CONVERGED)"), fontsize=9)
-        ax.legend(fontsize=7)
+        plain_text(ax.set_title(f"{name}: {pan['label']}" + (
+            "" if summ["converged"] else "  (NOT CONVERGED)"), fontsize=9))
+        for t in ax.legend(fontsize=7).get_texts():
+            plain_text(t)
         rax.set_ylabel("resid/σ", fontsize=8)
         rax.set_xlabel("wavelength [µm]")
     fig.tight_layout()

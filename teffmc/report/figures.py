@@ -37,6 +37,14 @@ def _meta(converged):
     return {"Software": "teffmc", "Description": "converged" if converged else CAUTION}
 
 
+def plain_text(text):
+    """Draw a matplotlib Text as typed, neither mathtext nor TeX: for user-given names
+    (a star called "$\\frac{a" would otherwise fail to parse when the figure is drawn)."""
+    text.set_usetex(False)
+    text.set_parse_math(False)
+    return text
+
+
 def _label(name):
     base, _, ep = name.partition("@")
     lab = LABELS.get(base, base)
@@ -58,7 +66,7 @@ def corner_figure(samples, names, path, *, truths=None, converged=True, title=No
     if not converged:
         head = f"{head}\n{CAUTION}" if head else CAUTION
     if head:
-        fig.suptitle(head, color="black" if converged else "red", fontsize=12)
+        plain_text(fig.suptitle(head, color="black" if converged else "red", fontsize=12))
     fig.savefig(path, dpi=90, metadata=_meta(converged))
     plt.close(fig)
 
@@ -100,7 +108,7 @@ def fit_figure(panels, path, *, converged=True, title=None):
             ax.invert_yaxis()
             ax.set_ylabel("magnitude")
             rax.plot(um, (d - med) / e, "o", color="0.3", ms=4)
-        ax.set_title(pan["label"], fontsize=10)
+        plain_text(ax.set_title(pan["label"], fontsize=10))
         ax.legend(fontsize=8, loc="best")
         rax.axhline(0, color="tab:red", lw=0.6)
         rax.set_ylabel("(data−model)/σ", fontsize=8)
@@ -110,7 +118,7 @@ def fit_figure(panels, path, *, converged=True, title=None):
     if not converged:
         head = f"{head}\n{CAUTION}" if head else CAUTION
     if head:
-        fig.suptitle(head, color="black" if converged else "red")
+        plain_text(fig.suptitle(head, color="black" if converged else "red"))
     fig.tight_layout()
     fig.savefig(path, dpi=90, metadata=_meta(converged))
     plt.close(fig)

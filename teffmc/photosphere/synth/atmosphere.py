@@ -139,9 +139,16 @@ _LT = np.arange(3.0, 4.5001, 0.02)
 _LP = np.arange(-5.0, 10.0001, 0.25)
 
 
-@lru_cache(maxsize=8)
 def rosseland_table(mh):
-    """log10 kappa_R [cm^2/g] on (_LT, _LP) for metallicity mh (work wavelength grid)."""
+    """log10 kappa_R [cm^2/g] on (_LT, _LP) for metallicity mh (work wavelength grid),
+    for the opacity scales in force (``bands.PHYSICS``, part of the cache key)."""
+    from .bands import PHYSICS
+
+    return _rosseland_table(mh, PHYSICS["tio"], PHYSICS["haze"])
+
+
+@lru_cache(maxsize=8)
+def _rosseland_table(mh, _tio, _haze):
     op = _opacity("work")
     tt, pp = np.meshgrid(10**_LT, 10**_LP, indexing="ij")
     out = np.empty(tt.shape)

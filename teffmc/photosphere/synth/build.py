@@ -125,20 +125,22 @@ def _column_task(args):
     return compute_column(logg, mh)
 
 
-def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=False,
-               physics=None):
-    """Compute the built-in photosphere grid and write it to ``out_path`` (HDF5).
+#: the built-in grid's nuisance axes: (name, ln step h, prior low, prior high, note). The
+#: grid is recomputed with the opacity scaled by e^-h and e^h (teffmc.photosphere.nuisance).
+NUISANCE = (
+    ("tio", float(np.log(2.0)), 0.5, 2.0,
+     "scale of the TiO band opacity (all systems): published band oscillator strengths "
+     "of the TiO systems differ by up to a factor ~2 between laboratory and theoretical "
+     "determinations (from memory); prior log-uniform 0.5-2"),
+    ("haze", float(np.log(2.0)), 0.5, 2.0,
+     "scale of the statistical atomic line haze: its amplitude was calibrated on solar "
+     "colours only, and line blanketing of cool giants differs by tens of per cent to a "
+     "factor ~2 between line lists and codes (from memory); prior log-uniform 0.5-2"),
+)
 
-    Nodes whose emergent flux misses sigma Teff^4 by more than ENERGY_TOL (or that fail)
-    are stored as NaN (missing nodes) and listed in the provenance. Returns the Grid.
-    """
-    from ..grid import Grid
 
-    teff = TEFF if teff is None else np.asarray(teff, float)
-    logg = LOGG if logg is None else np.asarray(logg, float)
-    mh = MH if mh is None else np.asarray(mh, float)
-    if not (isinstance(workers, int) and workers >= 1):
-        raise GridError(f"workers should be a positive integer but got {workers!r}")
+def _compute_cube(teff, logg, mh, workers, progress, physics):
+    """Every model of the grid with the given opacity scales: (log_flux, dev, iterations)."""
     tasks = [(float(g), float(m)) for g in logg for m in mh]
     t0 = time.time()
     if workers == 1:
@@ -157,7 +159,7 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
             with mp.get_context("spawn").Pool(workers) as pool:
                 results = []
                 for k, r in enumerate(pool.imap(partial(_column_args, teff=teff, physics=physics),
-                                                     tasks)):
+                                                tasks)):
                     results.append(r)
                     if progress:
                         print(f"column {k + 1}/{len(tasks)} done, {time.time() - t0:.0f} s",
@@ -175,8 +177,45 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
     for (g, m), (o, d, it, _fe) in zip(tasks, results):
         j, k = int(np.argmin(abs(logg - g))), int(np.argmin(abs(mh - m)))
         lf[:, j, k], dev[:, j, k], its[:, j, k] = o, d, it
+    lf[~(np.abs(dev) <= ENERGY_TOL)] = np.nan
+    return lf, dev, its
+
+
+def _nuisance_axes(teff, logg, mh, workers, progress):
+    from ..nuisance import NuisanceAxis
+
+    axes = []
+    for name, h, low, high, note in NUISANCE:
+        cubes = []
+        for sign in (-1.0, 1.0):
+            if progress:
+                print(f"nuisance {name}: scale e^{sign * h:+.3f}", flush=True)
+            cubes.append(_compute_cube(teff, logg, mh, workers, progress,
+                                       {name: float(np.exp(sign * h))})[0])
+        axes.append(NuisanceAxis(name, h, cubes[0], cubes[1], low, high, note))
+    return tuple(axes)
+
+
+def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=False,
+               physics=None, nuisance=True):
+    """Compute the built-in photosphere grid and write it to ``out_path`` (HDF5).
+
+    Nodes whose emergent flux misses sigma Teff^4 by more than ENERGY_TOL (or that fail)
+    are stored as NaN (missing nodes) and listed in the provenance. With ``nuisance`` the
+    grid is also recomputed for every axis of :data:`NUISANCE` (4 more grids) and the
+    axes are stored in the file. Returns the Grid.
+    """
+    from ..grid import Grid
+
+    teff = TEFF if teff is None else np.asarray(teff, float)
+    logg = LOGG if logg is None else np.asarray(logg, float)
+    mh = MH if mh is None else np.asarray(mh, float)
+    if not (isinstance(workers, int) and workers >= 1):
+        raise GridError(f"workers should be a positive integer but got {workers!r}")
+    t0 = time.time()
+    lf, dev, its = _compute_cube(teff, logg, mh, workers, progress, physics)
+    axes = _nuisance_axes(teff, logg, mh, workers, progress) if nuisance else ()
     bad = ~(np.abs(dev) <= ENERGY_TOL)
-    lf[bad] = np.nan
     holes = [f"({teff[i]:g},{logg[j]:g},{mh[k]:g})" for i, j, k in np.argwhere(bad)]
     good = ~bad
     prov = {
@@ -201,8 +240,10 @@ def build_grid(out_path, *, workers=2, teff=None, logg=None, mh=None, progress=F
         "missing_nodes": ";".join(holes) if holes else "none",
         "iterations_max": f"{int(its.max())}",
     }
+    for a in axes:
+        prov[f"nuisance_{a.name}"] = a.note
     grid = Grid(teff=teff, logg=logg, mh=mh, wave=wave_fine().copy(), log_flux=lf,
-                provenance=prov, name="teffmc-builtin-lte")
+                provenance=prov, name="teffmc-builtin-lte", nuisance=axes)
     grid.write(out_path)
     if progress:
         print(f"wrote {out_path}: {time.time() - t0:.0f} s, max |dev| "

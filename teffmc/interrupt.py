@@ -1,0 +1,39 @@
+"""Ctrl-C (or SIGTERM, which the command line turns into the same KeyboardInterrupt)
+while a sampler library is calling our log-probability.
+
+emcee and dynesty call the user's function through wrappers that catch every exception,
+print the arguments and a traceback, and re-raise: an interrupt arriving there would end
+a run with a screen of traceback. :class:`DeferredInterrupt` holds it back to the end of
+the sampler step, where the driver raises it outside the library's wrapper.
+"""
+
+__all__ = ["DeferredInterrupt"]
+
+
+class DeferredInterrupt:
+    """Call ``fn``; a KeyboardInterrupt inside it is raised later, by :meth:`check`.
+
+    The interrupted call is made again, so the step completes exactly as without the
+    interrupt (the log-probability is a pure function): the sampler's state stays valid
+    and the driver stops cleanly between steps. A second interrupt before :meth:`check`
+    is not held back.
+    """
+
+    def __init__(self, fn):
+        self.fn, self.pending = fn, False
+
+    def __call__(self, *args):
+        while True:
+            try:
+                return self.fn(*args)
+            except KeyboardInterrupt:
+                if self.pending:
+                    raise
+                self.pending = True
+
+    def check(self, *args, **kwargs):
+        """Raise the held-back KeyboardInterrupt, if any (ignores its arguments, so it
+        can serve as a library's per-iteration callback)."""
+        if self.pending:
+            self.pending = False
+            raise KeyboardInterrupt
