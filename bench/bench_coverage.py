@@ -66,7 +66,7 @@ def _distort(path, rng, resolution):
     cont = uniform_filter1d(maximum_filter1d(f, 41), 41)
     depth = np.log(np.clip(f / cont, 1e-3, None))
     scale = np.repeat(1.0 + 0.15 * rng.standard_normal(v.size // 2 + 1), 2)[:v.size]
-    t["flux"] = cont * np.exp(depth * scale) * (1.0 + smooth)
+    t["flux"] = cont * np.exp(depth * scale) * (1.0 + smooth) * t["flux"].unit
     t.write(path, format="ascii.ecsv", overwrite=True)
     return {"distortion_amp": amp, "distortion_rho": rho}
 

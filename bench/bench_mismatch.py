@@ -44,7 +44,7 @@ def _prep(tmp, mismatch, nuisance):
         grid_nuisance = {str(nuisance).lower()}
         [[epoch]]
         photometry = "b_phot.ecsv"
-        spectra = [{{ file = "b_spec.ecsv", resolution = 2000.0, calibration_order = 2, mismatch = "{mismatch}" }}]
+        spectra = [{{ file = "b_spec.ecsv", resolution = 2000.0, calibration_order = 2, telluric_mask = false, mismatch = "{mismatch}" }}]
         """))  # noqa: E501
     return prepare(tmp / f"{mismatch}{nuisance}.toml", log=lambda m: None)
 

@@ -90,8 +90,12 @@ def _cmd_demo(args):
 
 
 def _cmd_report(args):
-    from .rereport import redraw
+    from .rereport import parse_formats, redraw, write_tables
 
+    if args.format is not None:
+        written = write_tables(Path(args.run_dir), parse_formats(args.format))
+        print("tables written: " + ", ".join(str(p) for p in written))
+        return 0
     redraw(Path(args.run_dir))
     print(f"figures and tables redrawn in {args.run_dir}")
     return 0
@@ -181,6 +185,10 @@ def build_parser():
 
     r = sub.add_parser("report", help="redraw figures and tables of a finished run")
     r.add_argument("run_dir")
+    r.add_argument("--format", metavar="LIST",
+                   help="write only paper tables from summary.json, a comma-separated list: "
+                   "tex (table.tex, LaTeX tabular; table_aastex.tex, AASTeX deluxetable), "
+                   "csv (table.csv); without it, figures and summary tables are redrawn")
     r.set_defaults(func=_cmd_report)
 
     g = sub.add_parser("grid", help="build, import or describe a photosphere grid")

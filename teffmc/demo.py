@@ -30,7 +30,7 @@ CONFIG = """\
 # Its data were simulated by teffmc's forward model; the true values are in truth.toml.
 name = "Ficta (invented demo star)"
 grid = "{grid}"
-shared = ["logg", "mh", "a_v", "r_v", "theta", "grain_radius", "mismatch_amp", "mismatch_scale"]
+shared = ["logg", "mh", "a_v", "r_v", "theta", "grain_radius", "mismatch_amp", "mismatch_scale", "tio_scale", "haze_scale"]
 distance_pc = {{ dist = "normal", mean = 700.0, sd = 70.0 }}
 
 [model]
@@ -72,7 +72,7 @@ grain_radius = {{ dist = "loguniform", low = 0.05, high = 3.0 }}
 
 [sampler]
 n_walkers = 32
-max_steps = 8000
+max_steps = 25000
 min_steps = 1000
 check_every = 250
 seed = 7

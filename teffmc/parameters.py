@@ -154,7 +154,9 @@ class ParameterSpace:
         self.multi = len(labels) > 1
         self.names, self.priors, self._slots = [], [], {}
         for base in defaults:
-            per_epoch = self.multi and base not in config.shared
+            # the grid's physics is the same at every epoch: nuisances are always shared
+            per_epoch = (self.multi and base not in config.shared
+                         and base not in self.nuisance_params)
             keys = [f"{base}@{lab}" for lab in labels] if per_epoch else [base]
             for key, lab in zip(keys, labels if per_epoch else [None]):
                 prior = priors.get(key, priors[base])

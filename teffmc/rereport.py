@@ -1,14 +1,19 @@
 """``teffmc report RUN_DIR``: redraw figures and tables from a finished run's files."""
 
 import json
+import tomllib
 from pathlib import Path
 
 import numpy as np
 
 from . import posterior as post_mod
+from .errors import ConfigError, DataError
 from .report import corner_figure, fit_figure, write_summary
 
-__all__ = ["panels_from_posterior", "redraw"]
+__all__ = ["panels_from_posterior", "redraw", "parse_formats", "write_tables", "TABLE_FORMATS"]
+
+#: ``teffmc report --format`` names and the files each writes into the run folder
+TABLE_FORMATS = {"tex": ("table.tex", "table_aastex.tex"), "csv": ("table.csv",)}
 
 
 def panels_from_posterior(dt):
@@ -36,3 +41,40 @@ def redraw(run_dir):
     corner_figure(samples, names, run_dir / "corner.png", converged=converged, title=title)
     fit_figure(panels_from_posterior(dt), run_dir / "fit.png", converged=converged, title=title)
     write_summary(summary, run_dir / "summary.json", run_dir / "summary.ecsv")
+
+
+def parse_formats(text):
+    """``"tex,csv"`` -> ``["tex", "csv"]``, checked against :data:`TABLE_FORMATS`."""
+    formats = [f.strip() for f in text.split(",") if f.strip()]
+    bad = [f for f in formats if f not in TABLE_FORMATS]
+    if bad or not formats:
+        raise ConfigError(f"should be a comma-separated list of {', '.join(TABLE_FORMATS)} "
+                          f"but got {text!r}", key="--format", value=text)
+    return formats
+
+
+def write_tables(run_dir, formats):
+    """Write the paper tables of ``run_dir`` from its summary.json; return the paths.
+
+    ``tex``: table.tex (plain LaTeX tabular) and table_aastex.tex (AASTeX deluxetable);
+    ``csv``: table.csv. The star name for the caption comes from run.toml when present.
+    """
+    from .report.latex import csv_table, latex_table
+
+    run_dir = Path(run_dir)
+    sj = run_dir / "summary.json"
+    if not sj.is_file():
+        raise DataError("not a finished teffmc run folder (file missing)", file=str(sj))
+    summary = json.loads(sj.read_text(encoding="utf-8"))
+    star = None
+    if (run_dir / "run.toml").is_file():
+        star = tomllib.loads((run_dir / "run.toml").read_text(encoding="utf-8")).get("name")
+    text = {"table.tex": lambda: latex_table(summary, star=star),
+            "table_aastex.tex": lambda: latex_table(summary, style="deluxetable", star=star),
+            "table.csv": lambda: csv_table(summary)}
+    written = []
+    for f in formats:
+        for name in TABLE_FORMATS[f]:
+            (run_dir / name).write_text(text[name](), encoding="utf-8")
+            written.append(run_dir / name)
+    return written

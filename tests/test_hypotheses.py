@@ -26,6 +26,8 @@ BASE = {"logg": 0.0, "mh": 0.0, "a_v": 0.5, "r_v": 3.1, "theta": 8.0, "veil_cove
 CONFIG = """\
 grid = "builtin"
 shared = ["logg", "mh", "a_v", "r_v", "theta", "grain_radius"]
+[model]
+grid_nuisance = false
 [[hypothesis]]
 name = "veil"
 veil = "mie"

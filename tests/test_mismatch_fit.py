@@ -26,6 +26,8 @@ TRUTH = {"teff": 3700.0, "logg": 0.0, "mh": 0.0, "a_v": 0.8, "r_v": 3.1, "theta"
 CONFIG = """\
 name = "distorted injection (invented)"
 grid = "builtin"
+[model]
+grid_nuisance = {nuisance}
 [[epoch]]
 photometry = "star_phot.ecsv"
 spectra = [{{ file = "star_spec.ecsv", resolution = 1000.0, calibration_order = 1, mismatch = "{mismatch}" }}]
@@ -59,7 +61,11 @@ def distorted(tmp_path_factory):
     runs = {}
     for kind in ("none", "correlated"):
         cfg = tmp / f"{kind}.toml"
-        cfg.write_text(textwrap.dedent(CONFIG.format(mismatch=kind)), encoding="utf-8")
+        # "none": the old likelihood (no mismatch term, no grid nuisances); "correlated":
+        # the defaults (both on)
+        nuisance = "false" if kind == "none" else "true"
+        cfg.write_text(textwrap.dedent(CONFIG.format(mismatch=kind, nuisance=nuisance)),
+                       encoding="utf-8")
         runs[kind] = fit(cfg, tmp / f"run_{kind}", quiet=True)
     return runs
 
@@ -118,7 +124,11 @@ def flux_errors(tmp_path_factory):
     runs = {}
     for kind in ("none", "correlated"):
         cfg = tmp / f"{kind}.toml"
-        cfg.write_text(textwrap.dedent(CONFIG.format(mismatch=kind)), encoding="utf-8")
+        # "none": the old likelihood (no mismatch term, no grid nuisances); "correlated":
+        # the defaults (both on)
+        nuisance = "false" if kind == "none" else "true"
+        cfg.write_text(textwrap.dedent(CONFIG.format(mismatch=kind, nuisance=nuisance)),
+                       encoding="utf-8")
         runs[kind] = fit(cfg, tmp / f"run_{kind}", quiet=True)
     return runs
 

@@ -22,6 +22,7 @@ def _case(tmp, *, grid="builtin", spec_extra="", model_extra="", top_extra=""):
         grid = "{grid}"
         {top_extra}
         [model]
+        grid_nuisance = false
         {model_extra}
         [[epoch]]
         photometry = "o_phot.ecsv"

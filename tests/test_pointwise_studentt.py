@@ -80,6 +80,7 @@ def prep(tmp_path_factory):
         [model]
         likelihood = "student_t"
         student_nu = {NU}
+        grid_nuisance = false
         interp_error = true
         [[epoch]]
         photometry = "o_phot.ecsv"

@@ -141,6 +141,9 @@ class Grid:
                      f"median lambda/dlambda {rp:.0f}")
         lines.append(f"models: {int(self._present.sum())} present, {len(self.holes)} holes")
         lines.append(f"checksum: sha256:{self.checksum}")
+        for a in self.nuisance:
+            lines.append(f"nuisance: {a.parameter} (grid at scale {np.exp(-a.step):.3g} and "
+                         f"{np.exp(a.step):.3g}; default prior log-uniform {a.low:g}-{a.high:g})")
         lines += [f"provenance.{k}: {v}" for k, v in sorted(self.provenance.items())]
         return "\n".join(lines)
 
