@@ -12,6 +12,8 @@ from pathlib import Path
 
 from scipy import special
 
+from .dust.extinction import LAWS
+from .dust.materials import MATERIALS
 from .errors import ConfigError
 from .priors import PRIOR_KINDS, Prior
 
@@ -305,9 +307,9 @@ def parse_config(table, path="<config>"):
 
     m = top.sub("model") or _Reader(str(path), {}, "model.")
     model = ModelSpec(
-        extinction_law=m.get("extinction_law", str, "CCM89"),
+        extinction_law=m.choice("extinction_law", tuple(LAWS), "CCM89"),
         veil=m.choice("veil", VEILS, "none"),
-        grain_material=m.get("grain_material", str, "silicate"),
+        grain_material=m.choice("grain_material", tuple(MATERIALS), "silicate"),
         grain_spread_dex=m.get("grain_spread_dex", float, 0.1),
         scattering=m.get("scattering", bool, False),
         scatter_cone_deg=_cone_deg(m, 90.0),
@@ -388,7 +390,9 @@ def parse_config(table, path="<config>"):
         over = {}
         for k in ("veil", "grain_material", "extinction_law", "likelihood"):
             if k in t:
-                allowed = {"veil": VEILS, "likelihood": ("gaussian", "student_t")}.get(k)
+                allowed = {"veil": VEILS, "likelihood": ("gaussian", "student_t"),
+                           "grain_material": tuple(MATERIALS),
+                           "extinction_law": tuple(LAWS)}.get(k)
                 over[k] = h.choice(k, allowed, None) if allowed else h.get(k, str)
         for k in ("scattering", "patches"):
             if k in t:

@@ -6,6 +6,7 @@ one column per epoch (named ``name@label`` when there are several epochs); fixed
 parameters have no column.
 """
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -24,6 +25,33 @@ NUISANCE_PARAMETERS = ("tio_scale", "haze_scale")
 #: parameters that enter only through their square or a logarithm: must stay > 0
 POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale",
             *NUISANCE_PARAMETERS)
+
+#: physical limits of parameters, whatever the model: (low, high, why)
+LIMITS = {"a_v": (0.0, math.inf, "extinction cannot be negative"),
+          "veil_tau": (0.0, math.inf, "an optical depth cannot be negative"),
+          "veil_cover": (0.0, 1.0, "a covering fraction lies in [0, 1]"),
+          "veil_scatter": (0.0, 1.0, "a scattered-light fraction lies in [0, 1]"),
+          "patch_cover": (0.0, 1.0, "a covering fraction lies in [0, 1]"),
+          "patch_dteff": (0.0, math.inf, "the patches are cooler than the photosphere")}
+
+
+def parameter_limits(base, model):
+    """(low, high, why) the core accepts for one parameter of ``model``, or None.
+
+    Beyond :data:`LIMITS`: R_V within the extinction law's calibrated range and the
+    grain radius within the optics table's.
+    """
+    if base == "r_v":
+        from .dust.extinction import law_ranges
+
+        lo, hi = law_ranges(model.extinction_law)[1]
+        return lo, hi, f"the R_V range of extinction law {model.extinction_law}"
+    if base == "grain_radius":
+        from .dust.mietable import RADIUS_RANGE
+
+        return (*RADIUS_RANGE, "the grain radii [micron] of the optics table")
+    return LIMITS.get(base)
+
 
 UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
          "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
@@ -100,6 +128,20 @@ class _Slot:
     value: float         # used when fixed
 
 
+def _check_limits(base, prior, model, file, key):
+    limits = parameter_limits(base, model)
+    if limits is None:
+        return
+    lo, hi, why = limits
+    plo, phi = prior.support
+    if plo < lo or phi > hi:
+        what = (f"the prior's range [{plo:g}, {phi:g}]" if plo != phi
+                else f"the fixed value {plo:g}")
+        raise ConfigError(f"{what} reaches outside [{lo:g}, {hi:g}] ({why})"
+                          + ("; use truncnormal for a normal prior" if prior.kind == "normal"
+                             else ""), file=file, key=f"priors.{key}", value=(plo, phi))
+
+
 class ParameterSpace:
     """The mapping between a flat sampled vector and named per-epoch parameters."""
 
@@ -141,6 +183,7 @@ class ParameterSpace:
                 raise ConfigError(f"{base} must be > 0 but the prior reaches "
                                   f"{prior.support[0]:g}", file=file, key=f"priors.{key}",
                                   value=prior.support[0])
+            _check_limits(base, prior, config.model, file, key)
             priors[base if label and not multi else key] = prior
         for axis in ("teff", "logg", "mh"):
             for key in [k for k in priors if k.partition("@")[0] == axis]:

@@ -157,8 +157,8 @@ def fit(config, out=None, *, resume=False, quiet=False):
     if len(cfg.grids) > 1:
         return fit_grids(cfg, out, resume=resume, quiet=quiet)
     variants = cfg.variants()
-    if len(variants) == 1:
-        return fit_one(cfg, out, resume=resume, quiet=quiet)
+    if len(variants) == 1:   # no hypotheses, or one: its model, fitted into ``out``
+        return fit_one(variants[0][1], out, resume=resume, quiet=quiet)
     from .compare import compare_runs
     from .photosphere import load_grid
 

@@ -19,7 +19,7 @@ from teffmc.dust.materials import get_material
 from teffmc.dust.mie import _check_spread, cone_fraction, efficiencies, lognormal_weights
 from teffmc.errors import ConfigError
 
-__all__ = ["MieTable", "interp_log_radius"]
+__all__ = ["MieTable", "interp_log_radius", "RADIUS_RANGE"]
 
 #: Fine x grid: uniform in ln x with step ``H_LN`` up to x = DX / H_LN, then uniform in x
 #: with step ``DX`` (single size: finer). Chosen so the table agrees with the direct
@@ -35,6 +35,8 @@ H_OUT = 0.0005 * np.log(10.0)
 #: checked in tests/test_dust_veil.py).
 H_CONE = 0.01 * np.log(10.0)
 _FORMAT = 2  # bump when the table layout or algorithm changes
+#: grain radii [micron] the optics table covers by default (a prior must stay inside)
+RADIUS_RANGE = (0.01, 10.0)
 
 
 def _fine_x(x_lo, x_hi, h_ln, dx):
@@ -174,7 +176,7 @@ class MieTable:
     need a dense ``n_radius``.
     """
 
-    def __init__(self, material, wave, spread_dex=0.0, radius_range=(0.01, 10.0),
+    def __init__(self, material, wave, spread_dex=0.0, radius_range=RADIUS_RANGE,
                  n_radius=None, use_cache=True, cone_deg=None):
         self.material = get_material(material)
         self.cone_deg = None if cone_deg is None else float(cone_deg)

@@ -64,7 +64,7 @@ import numpy as np
 from scipy.sparse import csr_matrix
 
 from teffmc.dust._wave import as_wave_aa
-from teffmc.dust.mietable import MieTable, interp_log_radius, log_radius
+from teffmc.dust.mietable import RADIUS_RANGE, MieTable, interp_log_radius, log_radius
 from teffmc.errors import ConfigError
 
 __all__ = ["VEIL_KINDS", "V_WAVE", "Veil", "forward_fraction"]
@@ -145,7 +145,7 @@ class Veil:
     """
 
     def __init__(self, kind, wave, material="silicate", spread_dex=0.1, scattering=None,
-                 radius_range=(0.01, 10.0), n_radius=None, use_cache=True,
+                 radius_range=RADIUS_RANGE, n_radius=None, use_cache=True,
                  scatter_cone_deg=90.0):
         if kind not in VEIL_KINDS:
             raise ConfigError(f"unknown veil kind {kind!r}; allowed: {', '.join(VEIL_KINDS)}",
