@@ -7,14 +7,11 @@ spectrum: for M-type stars use the built-in grid or an imported one.
 
 import numpy as np
 
+from ..constants import C_CGS, H_CGS, K_CGS
 from ..errors import OffGridError
 
 __all__ = ["BlackbodyGrid", "planck_surface_flux"]
 
-# CODATA 2018 exact SI values, converted to cgs.
-H_CGS = 6.62607015e-27   # erg s
-C_CGS = 2.99792458e10    # cm s^-1
-K_CGS = 1.380649e-16     # erg K^-1
 
 
 def planck_surface_flux(wave_A, teff):

@@ -7,6 +7,8 @@ from the source at the time of writing, and is approximate.
 
 import numpy as np
 
+from ...constants import C_CGS, H_CGS, K_CGS
+
 __all__ = [
     "ABUND",
     "AMU",
@@ -24,10 +26,11 @@ __all__ = [
     "H",
 ]
 
-# CODATA 2018 (exact SI-defined values converted to cgs; sigma derived from them).
-H = 6.62607015e-27          # Planck constant [erg s]
-C = 2.99792458e10           # speed of light [cm s^-1]
-KB = 1.380649e-16           # Boltzmann constant [erg K^-1]
+# h, c, k: exact SI-defined values in cgs, from the package's one definition
+# (teffmc.constants, astropy.constants); the rest CODATA 2018.
+H = H_CGS                   # Planck constant [erg s]
+C = C_CGS                   # speed of light [cm s^-1]
+KB = K_CGS                  # Boltzmann constant [erg K^-1]
 EV = 1.602176634e-12        # electron volt [erg]
 ME = 9.1093837015e-28       # electron mass [g]  (CODATA 2018)
 AMU = 1.66053906660e-24     # atomic mass unit [g]  (CODATA 2018)

@@ -9,7 +9,7 @@ of shape (n_depth, n_wave). Scattering (Rayleigh, Thomson) is treated as true ab
 import numpy as np
 
 from .bands import band_basis, band_weights
-from .constants import HC_K, SIGMA_T
+from .constants import HC_K, KB, SIGMA_T
 
 __all__ = ["Opacity"]
 
@@ -65,7 +65,7 @@ class Opacity:
         stim = -np.expm1(-HC_K / (w * T))
         theta = 5040.0 * kT_inv
         lt = np.log10(theta)
-        n = {k: sp[k][:, None] / (1.380649e-16 * T) for k in ("H", "H-", "H2", "e")}
+        n = {k: sp[k][:, None] / (KB * T) for k in ("H", "H-", "H2", "e")}
         pe = sp["e"][:, None]
         k_hm_bf = n["H-"] * self.hm_bf[None, :] * stim
         k_hm_ff = (n["H"] * 1e-26 * pe * self.ff_scale[None, :]
