@@ -51,14 +51,16 @@ class OffGridError(GridError):
         ``{name: (low, high)}`` of the grid axes.
     """
 
-    def __init__(self, point, bounds):
-        self.point, self.bounds = dict(point), dict(bounds)
+    def __init__(self, point, bounds, epoch=None):
+        self.point, self.bounds, self.epoch = dict(point), dict(bounds), epoch
         bad = [
             f"{k}={v:g} not in [{bounds[k][0]:g}, {bounds[k][1]:g}]"
             for k, v in self.point.items()
             if k in bounds and not (bounds[k][0] <= v <= bounds[k][1])
         ]
-        super().__init__("point outside the grid: " + ("; ".join(bad) or str(self.point)))
+        where = "" if epoch is None else f" (epoch {epoch})"
+        super().__init__(f"point outside the grid{where}: "
+                         + ("; ".join(bad) or str(self.point)))
 
 
 class ConvergenceWarning(UserWarning):

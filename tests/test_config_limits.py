@@ -117,3 +117,37 @@ def test_limits_inside_are_accepted():
     m = ModelSpec(extinction_law="F99")
     assert parameter_limits("r_v", m)[:2] == law_ranges("F99")[1]
     assert parameter_limits("a_v", m)[0] == 0.0 and parameter_limits("teff", m) is None
+
+
+def test_off_grid_names_the_epoch(tmp_path):
+    # the pointwise terms refuse a draw off the grid, naming the epoch whose parameters
+    # left it (it named the first epoch's values whichever epoch it was)
+    import numpy as np
+
+    from teffmc.errors import OffGridError
+    from teffmc.run import prepare
+
+    (tmp_path / "phot.ecsv").write_text(PHOT)
+    cfg = tmp_path / "two.toml"
+    cfg.write_text(textwrap.dedent("""\
+        grid = "blackbody"
+        shared = ["theta"]
+        [[epoch]]
+        label = "early"
+        photometry = "phot.ecsv"
+        [[epoch]]
+        label = "late"
+        photometry = "phot.ecsv"
+        [priors]
+        teff = { dist = "uniform", low = 3000, high = 5000 }
+        """))
+    prep = prepare(cfg, log=lambda m: None)
+    names = prep.space.names
+    x = np.array([[{"teff@early": 3500.0, "teff@late": 3600.0}.get(n, 1.0) for n in names]])
+    bounds = prep.grid.bounds["teff"]
+    x_bad = x.copy()
+    x_bad[0, names.index("teff@late")] = bounds[1] + 1000.0
+    prep.log_post.pointwise(x)            # on the grid: no error
+    with pytest.raises(OffGridError, match="epoch late") as info:
+        prep.log_post.pointwise(x_bad)
+    assert info.value.point["teff"] == bounds[1] + 1000.0

@@ -121,12 +121,14 @@ class Posterior:
         on each draw's posterior-mean polynomial instead (used only for PSIS-LOO).
         """
         x = np.atleast_2d(np.asarray(x, float))
-        inside = self._inside(x)
-        if not inside.all():
-            k = int(np.argmin(inside))
-            p = self.space.epoch_values(x[k:k + 1], self.space.labels[0])
-            raise OffGridError({a: float(p[a][0]) for a in ("teff", "logg", "mh")},
-                               self.grid.bounds)
+        for label in self.channels:   # name the epoch whose parameters leave the grid
+            p = self._epoch_params(x, label)
+            inside = self._inside_params({label: p})
+            if not inside.all():
+                k = int(np.argmin(inside))
+                raise OffGridError({a: float(p[a][k]) for a in ("teff", "logg", "mh")},
+                                   self.grid.bounds, epoch=label if len(self.channels) > 1
+                                   else None)
         out = {}
         for label, chans in self.channels.items():
             p = self._epoch_params(x, label)
