@@ -22,7 +22,8 @@ __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_
 
 VEILS = ("none", "grey", "mie")
 DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter",
-                  "mismatch_amp", "mismatch_scale", "tio_scale", "haze_scale")
+                  "mismatch_amp", "mismatch_scale", "mismatch_white", "tio_scale",
+                  "haze_scale")
 #: model-mismatch term of a spectrum (teffmc.likelihood.mismatch); the default is the
 #: one a careful user wants for a real star: no grid reproduces it pixel by pixel
 MISMATCH_KINDS = ("none", "white", "correlated")
@@ -100,10 +101,6 @@ class Config:
     hypotheses: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
     grids: tuple = ()   # several grids: each is fitted, the results stacked (teffmc.stacking)
-
-    @property
-    def multi_epoch(self):
-        return len(self.epochs) > 1
 
     def variants(self):
         """``[(name, Config)]``: one config per declared hypothesis (or just this one)."""

@@ -30,7 +30,7 @@ CONFIG = """\
 # Its data were simulated by teffmc's forward model; the true values are in truth.toml.
 name = "Ficta (invented demo star)"
 grid = "{grid}"
-shared = ["logg", "mh", "a_v", "r_v", "theta", "grain_radius", "mismatch_amp", "mismatch_scale", "tio_scale", "haze_scale"]
+shared = ["logg", "mh", "a_v", "r_v", "theta", "grain_radius", "mismatch_amp", "mismatch_scale", "mismatch_white", "tio_scale", "haze_scale"]
 distance_pc = {{ dist = "normal", mean = 700.0, sd = 70.0 }}
 
 [model]

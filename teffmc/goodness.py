@@ -20,6 +20,8 @@ A data set with ``chi2_nu`` above :data:`BAD_CHI2_NU` gets a plain caution: the 
 
 import numpy as np
 
+from .likelihood import pixel_variance
+
 __all__ = ["BAD_CHI2_NU", "goodness_of_fit", "cautions"]
 
 #: chi^2/nu above which a data set is called badly fitted (common practice, no source)
@@ -31,9 +33,7 @@ def _calibrated(ch, p, model):
 
     if ch.kind != "spectrum" or ch.basis is None:
         return model
-    var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
-    if getattr(ch, "mismatch", "none") != "none":
-        var = var + (p["mismatch_amp"][:, None] * model) ** 2
+    var = pixel_variance(ch, p, model, for_polynomial=True)
     sig = np.full(ch.basis.shape[0], ch.calibration_sigma)
     return model * (1.0 + calibration_mean(ch.data, var, model, ch.basis, sig))
 

@@ -19,11 +19,11 @@ __all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS", "POSITIVE"]
 #: every parameter any model variant can have
 ALL_PARAMETERS = ("teff", "logg", "mh", "theta", "a_v", "r_v", "jitter", "veil_tau",
                   "veil_cover", "grain_radius", "veil_scatter", "patch_cover", "patch_dteff",
-                  "mismatch_amp", "mismatch_scale")
+                  "mismatch_amp", "mismatch_scale", "mismatch_white")
 #: the built-in grid's nuisance parameters (teffmc.photosphere.nuisance)
 NUISANCE_PARAMETERS = ("tio_scale", "haze_scale")
 #: parameters that enter only through their square or a logarithm: must stay > 0
-POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale",
+POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale", "mismatch_white",
             *NUISANCE_PARAMETERS)
 
 #: physical limits of parameters, whatever the model: (low, high, why)
@@ -56,7 +56,8 @@ def parameter_limits(base, model):
 UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
          "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
          "patch_cover": "", "patch_dteff": "K", "rv_kms": "km/s", "jitter": "",
-         "distance_pc": "pc", "mismatch_amp": "", "mismatch_scale": "km/s", "tio_scale": "",
+         "distance_pc": "pc", "mismatch_amp": "", "mismatch_scale": "km/s", "mismatch_white": "",
+         "tio_scale": "",
          "haze_scale": ""}
 LABELS = {"teff": r"$T_\mathrm{eff}$ [K]", "logg": r"$\log g$", "mh": "[M/H]",
           "a_v": r"$A_V$", "r_v": r"$R_V$", "theta": r"$\theta$ [mas]",
@@ -65,6 +66,7 @@ LABELS = {"teff": r"$T_\mathrm{eff}$ [K]", "logg": r"$\log g$", "mh": "[M/H]",
           "patch_cover": r"$f_\mathrm{patch}$", "patch_dteff": r"$\Delta T_\mathrm{patch}$",
           "jitter": "jitter", "distance_pc": "d [pc]",
           "mismatch_amp": r"$\sigma_\mathrm{mis}$", "mismatch_scale": r"$\rho_\mathrm{mis}$ [km/s]",
+          "mismatch_white": r"$\sigma_\mathrm{pix}$",
           "tio_scale": r"$s_\mathrm{TiO}$", "haze_scale": r"$s_\mathrm{haze}$"}
 
 
@@ -111,6 +113,13 @@ def model_parameters(model, grid_bounds, nuisance=()):
         # decades: where the data do not constrain it (a grid that fits), a wider prior
         # only lengthens the chain.
         p["mismatch_scale"] = Prior("loguniform", low=100.0, high=10000.0)
+        # and an independent per-pixel part (a fraction of the model flux): errors of
+        # single lines and of the line-spread function decorrelate within a resolution
+        # element. Without it the one correlation length has to serve both and sits at
+        # the pixel scale, where it lets band-wide errors through (measured, cross-model
+        # injections: docs/coverage in the README). 1e-4 (nothing) to 30 %; log-uniform,
+        # common practice, no source
+        p["mismatch_white"] = Prior("loguniform", low=1e-4, high=0.3)
     if getattr(model, "grid_nuisance", True):
         for a in nuisance:
             # the grid's own declared range of the uncertain input (see its note)

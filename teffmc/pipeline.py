@@ -15,6 +15,7 @@ from .budget import dimming_budget
 from .derived import bolometric
 from .goodness import cautions as gof_cautions
 from .goodness import BAD_CHI2_NU, goodness_of_fit
+from .likelihood import pixel_variance
 from .model import Dust, band_pixels, observed_flux
 from .priors import Prior
 from .report import corner_figure, fit_figure, write_summary
@@ -203,11 +204,7 @@ def _predict(prep, x):
         for ch in chans:
             m = ch.predict(p)
             if ch.kind == "spectrum" and ch.basis is not None:
-                var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
-                if ch.interp_frac is not None:  # the same variance as the likelihood
-                    var = var + (ch.interp_frac[None, :] * m) ** 2
-                if ch.mismatch != "none":  # its diagonal: the polynomial for the figure
-                    var = var + (p["mismatch_amp"][:, None] * m) ** 2
+                var = pixel_variance(ch, p, m, for_polynomial=True)
                 m = m * (1.0 + calibration_mean(ch.data, var, m, ch.basis,
                                                 np.full(ch.basis.shape[0],
                                                         ch.calibration_sigma)))

@@ -24,6 +24,27 @@ def _gauss(resid, var):
     return -0.5 * (resid**2 / var + np.log(var) + LOG_2PI)
 
 
+def pixel_variance(ch, p, model, *, for_polynomial=False):
+    """Per-pixel variance [flux^2] of a spectrum channel, shape (n_walkers, n_pix).
+
+    Measurement errors times ``jitter``, the grid's interpolation error (when on) and the
+    independent parts of the mismatch term: ``mismatch_amp`` for ``"white"``,
+    ``mismatch_white`` for ``"correlated"``. The likelihood, the goodness of fit and the
+    figures' calibration polynomial all take it from here. ``for_polynomial`` adds the
+    correlated term's diagonal too (the polynomial's posterior mean of a figure is
+    formed with independent pixels).
+    """
+    var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
+    if getattr(ch, "interp_frac", None) is not None:
+        var = var + (ch.interp_frac[None, :] * model) ** 2
+    kind = getattr(ch, "mismatch", "none")
+    if kind == "white" or (kind == "correlated" and for_polynomial):
+        var = var + (p["mismatch_amp"][:, None] * model) ** 2
+    if kind == "correlated" and "mismatch_white" in p:
+        var = var + (p["mismatch_white"][:, None] * model) ** 2
+    return var
+
+
 class Posterior:
     """log posterior = log prior + sum over epochs and channels of log likelihood.
 
@@ -52,22 +73,14 @@ class Posterior:
             ok = inside if ok is None else ok & inside
         return ok
 
-    def _inside(self, x):
-        return self._inside_params({lab: self._epoch_params(x, lab) for lab in self.channels})
-
     def channel_loglike(self, ch, p, pointwise=False):
         """Log-likelihood of one channel, (n,) or (n, n_points) when ``pointwise``."""
         model = ch.predict(p)
         if ch.kind == "photometry":
             terms = _gauss(ch.data[None, :] - model, ch.err[None, :] ** 2)
             return terms if pointwise else terms.sum(axis=1)
-        var = (p["jitter"][:, None] * ch.err[None, :]) ** 2
-        if ch.interp_frac is not None:
-            var = var + (ch.interp_frac[None, :] * model) ** 2
-        mismatch = getattr(ch, "mismatch", "none")
-        if mismatch == "white":
-            var = var + (p["mismatch_amp"][:, None] * model) ** 2
-        elif mismatch == "correlated":
+        var = pixel_variance(ch, p, model)
+        if getattr(ch, "mismatch", "none") == "correlated":
             fn = correlated_loo_pointwise if pointwise else correlated_loglike
             return fn(ch.data, var, model, ch.velocity, p["mismatch_amp"], p["mismatch_scale"],
                       ch.basis, ch.calibration_sigma)

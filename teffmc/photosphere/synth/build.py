@@ -120,11 +120,6 @@ def _compute_column(logg, mh, teffs):
     return out, dev, its, ferr
 
 
-def _column_task(args):
-    logg, mh = args
-    return compute_column(logg, mh)
-
-
 #: the built-in grid's nuisance axes: (name, ln step h, prior low, prior high, note). The
 #: grid is recomputed with the opacity scaled by e^-h and e^h (teffmc.photosphere.nuisance).
 NUISANCE = (
