@@ -8,7 +8,8 @@ from astropy.modeling.models import BlackBody
 from teffmc.photosphere import BlackbodyGrid, planck_surface_flux
 
 
-# Values: ../shared/REFERENCES.md, "computed, astropy.modeling.models.BlackBody"
+# Values: docs/references.md#radiation-laws-and-constants,
+# "computed with astropy, astropy.modeling.models.BlackBody"
 @pytest.mark.parametrize("teff, wave_um, b_si", [
     (3600.0, 0.55, 1.654226e12),   # W m^-2 m^-1 sr^-1
     (5772.0, 0.50, 2.623854e13),

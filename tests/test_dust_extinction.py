@@ -8,10 +8,11 @@ from teffmc.dust import LAWS, ExtinctionTable, extinction_curve
 from teffmc.errors import ConfigError, DataError
 
 WAVE_UM = np.array([0.365, 0.44, 0.55, 0.70, 0.90, 1.25, 1.65, 2.2])
-# REFERENCES.md: CCM89 at R_V = 3.1, computed with dust_extinction 1.7
+# CCM89 at R_V = 3.1, computed with dust_extinction 1.7 (docs/references.md#extinction-laws)
 CCM89_REF = np.array([1.5569, 1.3245, 0.9989, 0.7502, 0.4788, 0.2821, 0.1804, 0.1135])
 G23_UM = np.array([0.44, 0.55, 0.65, 0.80, 1.25, 1.65, 2.2])
-# REFERENCES.md: G23 (Gordon et al. 2023) at R_V = 3.1, computed with dust_extinction
+# G23 (Gordon et al. 2023) at R_V = 3.1, computed with dust_extinction
+# (docs/references.md#extinction-laws)
 G23_REF = np.array([1.3204, 0.9985, 0.8134, 0.5900, 0.2685, 0.1682, 0.1031])
 
 
@@ -43,9 +44,9 @@ def test_quantity_input_is_converted_not_read_as_inverse_micron():
 @pytest.mark.parametrize("law", sorted(LAWS))
 @pytest.mark.parametrize("r_v", [2.5, 3.1, 5.0])
 def test_colour_excess_is_one_over_rv(law, r_v):
-    # E(B-V)/A_V = 1/R_V by definition (REFERENCES.md). B and V are taken at 0.44 and
-    # 0.55 micron, only near each law's own normalisation points: F99/F04 are then off
-    # by up to 0.022 (computed), the others by < 0.005 (computed).
+    # E(B-V)/A_V = 1/R_V by definition (docs/references.md#extinction-laws). B and V are
+    # taken at 0.44 and 0.55 micron, only near each law's own normalisation points:
+    # F99/F04 are then off by up to 0.022 (computed), the others by < 0.005 (computed).
     tol = 0.025 if law in ("F99", "F04") else 0.006
     a_b, a_v = extinction_curve(law, r_v, [4400.0, 5500.0])
     assert abs((a_b - a_v) / a_v - 1.0 / r_v) < tol

@@ -21,12 +21,15 @@ def _cache_in_tmp(tmp_path, monkeypatch):
 @pytest.mark.parametrize(
     "name, wave_aa, n_ref, tol",
     [
-        # REFERENCES.md: Malitson & Dodge 1972, n ~ 1.768 at 0.589 micron (given to 3 dp)
+        # Malitson & Dodge 1972, n ~ 1.768 at 0.589 micron (given to 3 dp)
+        # (docs/references.md#mie-theory-and-optical-constants)
         ("corundum", 5890.0, 1.768, 5e-4),
-        # REFERENCES.md: Malitson 1965, n = 1.4585 at 0.5893 micron; the Sellmeier fit gives
-        # 1.45840 there (computed), so the check allows 1.5e-4.
+        # Malitson 1965, n = 1.4585 at 0.5893 micron; the Sellmeier fit gives 1.45840 there
+        # (computed), so the check allows 1.5e-4
+        # (docs/references.md#mie-theory-and-optical-constants).
         ("silica", 5893.0, 1.4585, 1.5e-4),
-        # REFERENCES.md: Draine & Lee 1984 from memory, approximate
+        # Draine & Lee 1984 from memory, approximate
+        # (docs/references.md#mie-theory-and-optical-constants)
         ("silicate", 5500.0, 1.7, 1e-12),
     ],
 )
@@ -58,7 +61,7 @@ def test_material_range_and_sign_checks():
     [
         # Bohren & Huffman 1983, BHMIE example (from memory)
         (1.55, 5.2128, 3.10543, 3.10543, 0.63314),
-        # Wiscombe 1979, NCAR MIEV0 test cases (REFERENCES.md)
+        # Wiscombe 1979, NCAR MIEV0 test cases (docs/references.md#mie-theory-and-optical-constants)
         (1.5, 10.0, None, 2.882, None),
         (0.75, 10.0, None, 2.232265, 0.896473),
         (1.33 - 1e-5j, 1.0, None, 0.093923, 0.184517),
@@ -113,7 +116,8 @@ def test_extinction_paradox_large_x():
     assert dev[1] < dev[0]
 
 
-# ---- grain size and colour (REFERENCES.md, computed, m = 1.7 - 0.03i) -----------------
+# ---- grain size and colour -----------------------------------------------------------
+# computed with miepython, m = 1.7 - 0.03i (docs/references.md#mie-theory-and-optical-constants)
 
 @pytest.mark.parametrize(
     "radius, spread, ebv_av",

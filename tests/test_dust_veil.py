@@ -7,7 +7,7 @@ from scipy.integrate import quad
 from teffmc.dust import Veil, forward_fraction, grain_optics
 from teffmc.errors import ConfigError
 
-B_V = np.array([4400.0, 5500.0])  # [Angstrom], REFERENCES.md colour convention
+B_V = np.array([4400.0, 5500.0])  # [Angstrom], docs/references.md#dust-veil colour convention
 
 
 @pytest.fixture(autouse=True)
@@ -45,20 +45,23 @@ def on_off(tmp_path_factory):
 
 @pytest.mark.parametrize("radius", [1.0, 1.5, 2.0, 3.0, 5.0])
 def test_large_grains_are_nearly_grey(spread_veil, radius):
-    # REFERENCES.md: large grains (>~ 1 micron) extinguish almost greyly
+    # large grains (>~ 1 micron) extinguish almost greyly (common practice, no source;
+    # docs/references.md#dust-veil)
     assert abs(_ebv_over_av(spread_veil, radius)) < 0.1
 
 
 @pytest.mark.parametrize("radius", [0.05, 0.07, 0.1])
 def test_small_grains_redden(spread_veil, radius):
-    # REFERENCES.md: small grains redden; E(B-V)/A_V > 0.3
+    # small grains redden; E(B-V)/A_V > 0.3 (common practice, no source;
+    # docs/references.md#dust-veil)
     assert _ebv_over_av(spread_veil, radius) > 0.3
 
 
 @pytest.mark.parametrize(
     "radius_range, spread, radius, ref",
     [
-        # REFERENCES.md, computed, m = 1.7 - 0.03i, single sizes (tabulated nodes)
+        # computed with miepython, m = 1.7 - 0.03i, single sizes (tabulated nodes)
+        # (docs/references.md#mie-theory-and-optical-constants)
         ((0.1, 0.3), 0.0, 0.1, 0.97),
         ((0.1, 0.3), 0.0, 0.3, -0.29),  # the Mie ripple: not monotonic in size
         ((1.0, 3.0), 0.0, 1.0, -0.09),
@@ -114,7 +117,8 @@ def test_scattering_blues_a_reddening_veil():
 @pytest.mark.parametrize("radius", [0.3, 0.5, 0.7, 1.0])
 def test_scattering_colour_change_follows_returned_light(on_off, material, radius):
     # For 0.3-1 micron grains tau is often *smaller* at 0.4 than at 0.8 micron (the
-    # ripple; REFERENCES.md -0.29 at 0.3 micron), and then the returned light is too:
+    # ripple; -0.29 at 0.3 micron, computed, docs/references.md#mie-theory-and-optical-constants),
+    # and then the returned light is too:
     # scattering brightens 0.4 relative to 0.8 micron exactly when
     # tau omega F(g) is larger at 0.4 micron (cover = 1, see teffmc.dust.veil).
     wave = np.array([4000.0, 8000.0])

@@ -49,7 +49,8 @@ def test_vega_v_in_both_systems():
     assert synth_mag(grid, np.interp(grid, wave, flux), "bessell-V") == pytest.approx(
         0.03, abs=0.002
     )
-    # REFERENCES.md: V_AB(Vega) = +0.006 photon-counting (computed, speclite bessell-V)
+    # V_AB(Vega) = +0.006 photon-counting (computed, speclite bessell-V;
+    # docs/references.md#sun-and-vega)
     assert synth_mag(wave, flux, "bessell-V", "ab") == pytest.approx(0.006, abs=0.01)
 
 
@@ -93,8 +94,8 @@ def test_ab_mags_agree_with_dense_quadrature(band):
 
 
 def test_blackbody_v_change_3650_to_3600():
-    # REFERENCES.md: fixed-radius blackbody 3650 K -> 3600 K fades Bessell V by +0.107 mag
-    # (computed, speclite)
+    # fixed-radius blackbody 3650 K -> 3600 K fades Bessell V by +0.107 mag
+    # (computed, speclite; docs/references.md#photometric-systems-and-filters)
     wave = np.linspace(4000.0, 8000.0, 4001)
     hc_k = 1.438776877e8  # h c / k_B [A K], CODATA 2018 (exact constants)
     bb = 1.0 / wave**5 / np.expm1(hc_k / (wave * np.array([[3650.0], [3600.0]])))

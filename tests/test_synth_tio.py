@@ -1,7 +1,7 @@
 """Acceptance test 1: the TiO gamma band near 7054 A switches on between 4500 and 3400 K.
 
-Source: common practice, no source (REFERENCES.md "Facts of the trade": TiO bands appear
-below roughly 4000 K and deepen steeply towards ~3500 K).
+Source: common practice, no source (docs/references.md#stellar-atmospheres-and-tio: TiO bands
+appear below roughly 4000 K and deepen steeply towards ~3500 K).
 """
 
 import numpy as np

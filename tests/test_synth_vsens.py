@@ -1,8 +1,10 @@
 """Acceptance test 2: V-band temperature sensitivity of a 3600 K red supergiant model.
 
-Source: common practice, no source (REFERENCES.md: a 50 K cooling near 3600 K fades V
-by about 0.4 mag once TiO is included, roughly four times a blackbody's change);
-blackbody value 0.107 mag (REFERENCES.md, computed with speclite, Bessell V).
+Source: common practice, no source (docs/references.md#stellar-atmospheres-and-tio: a
+50 K cooling near 3600 K fades V by about 0.4 mag once TiO is included, roughly four times
+a blackbody's change);
+blackbody value 0.107 mag (computed with speclite, Bessell V;
+docs/references.md#photometric-systems-and-filters).
 """
 
 import numpy as np
@@ -20,7 +22,8 @@ def wave():
 
 
 def test_blackbody_reference(wave):
-    # REFERENCES.md (computed, speclite): fixed-radius blackbody, 3650 -> 3600 K: +0.107 mag
+    # computed with speclite: fixed-radius blackbody, 3650 -> 3600 K: +0.107 mag
+    # (docs/references.md#photometric-systems-and-filters)
     b = np.pi * planck(wave, np.array([3650.0, 3600.0]))
     dv = synth_mag(wave, b[1], "bessell-V") - synth_mag(wave, b[0], "bessell-V")
     if abs(dv - 0.107) > 0.003:

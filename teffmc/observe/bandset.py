@@ -5,8 +5,8 @@ Conventions
 Photon counting: the band flux of F_lambda is ``int F_lambda R lambda dlambda``
 with R the photon-detection probability (speclite's convention). The energy
 convention (``int F_lambda R dlambda``) differs by ~0.005 mag: for Vega in
-Bessell V, V_AB = +0.006 photon-counting vs +0.002 energy (REFERENCES.md,
-computed with speclite).
+Bessell V, V_AB = +0.006 photon-counting vs +0.002 energy (computed with
+speclite; docs/references.md#sun-and-vega).
 
 AB: m_AB = -2.5 log10 <f_nu> - 48.60 with f_nu in erg s^-1 cm^-2 Hz^-1
 (Oke & Gunn 1983, ApJ 266, 713), i.e. a flat f_nu = 3630.78 Jy source has

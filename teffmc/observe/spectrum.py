@@ -19,7 +19,8 @@ from teffmc.observe.airvac import air_to_vacuum
 
 __all__ = ["TELLURIC_BANDS", "Spectrum", "apply_masks", "from_specutils", "read_spectrum"]
 
-# Telluric absorption bands [A] (REFERENCES.md; common practice, no source):
+# Telluric absorption bands [A] (common practice, no source;
+# docs/references.md#spectra-and-wavelengths):
 # O2 B, H2O, O2 A, H2O, H2O. Their edges are approximate; the ~2 A air/vacuum
 # difference is below their precision.
 TELLURIC_BANDS = (

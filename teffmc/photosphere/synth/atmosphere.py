@@ -26,7 +26,8 @@ Known limitations (approximate by design): no convection, no radiation pressure 
 hottest log g = -1 models are formally super-Eddington but are computed anyway), no
 sphericity, no turbulence, constant atomic partition functions, scattering as absorption.
 Near 3600 K, log g 0, V fades by ~0.21 mag for a 50 K cooling (about twice a blackbody),
-less than the ~0.4 mag quoted for published red-supergiant grids (REFERENCES.md). Measured
+less than the ~0.4 mag quoted for published red-supergiant grids
+(docs/references.md#stellar-atmospheres-and-tio). Measured
 cause (not Ti locked in TiO: TiO holds < 8 % of Ti anywhere in the 3650 K model, Ti is
 mostly Ti+ below log tau_R = -3, and n(TiO) rises by x1.2-2.7 per 50 K): the smeared line
 haze dominates the V-band opacity of cool models (~2.5 mag of V blanketing at 3650 K, TiO

@@ -35,8 +35,8 @@ _FC = {0: 0.55, 1: 0.18, -1: 0.18, 2: 0.045, -2: 0.045}
 # w' [cm^-1], w'' [cm^-1], electronic f (band oscillator strength), lower state).
 # Band-head wavelengths: the classical heads 5167 (alpha), 5597 (beta), 6159/6187/6215
 # (gamma'), 7054/7088/7126 (gamma), 8432/8442/8452 (epsilon), 8859 (delta), ~11050 (phi)
-# (REFERENCES.md and from memory). Vibrational constants and f-values are approximate,
-# from memory (published f-values scatter by factors ~2).
+# (from memory; docs/references.md#stellar-atmospheres-and-tio). Vibrational constants and
+# f-values are approximate, from memory (published f-values scatter by factors ~2).
 TIO_SYSTEMS = (
     ("alpha C3D-X3D", 5167.0, (0.0, -60.0, -120.0), 838.0, 1009.0, 0.17, "X"),
     ("beta c1F-a1D", 5597.0, (0.0,), 918.0, 1018.0, 0.15, "a"),

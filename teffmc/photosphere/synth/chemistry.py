@@ -74,7 +74,8 @@ class Molecule:
 
 # Molecular constants (all from memory; spectroscopic constants as in Huber & Herzberg
 # 1979 "Constants of Diatomic Molecules"; dissociation energies D0 as quoted there and in
-# REFERENCES.md for H2 and TiO; H2O atomisation energy 9.51 eV from its thermochemistry).
+# docs/references.md#atomic-and-molecular-data for H2 and TiO; H2O atomisation energy
+# 9.51 eV from its thermochemistry).
 MOLECULES = (
     Molecule("H2", {"H": 2}, 4.478, [60.85], 2, [4401.0], [(1, 0.0)]),
     Molecule("CO", {"C": 1, "O": 1}, 11.09, [1.931], 1, [2170.0], [(1, 0.0)]),

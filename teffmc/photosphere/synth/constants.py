@@ -79,5 +79,6 @@ U1 = {
     "Si": 5.7, "K": 1.0, "Ca": 2.3, "Ti": 55.0, "Fe": 42.0,
 }
 
-# H- : electron affinity of H 0.754 eV (REFERENCES.md, from memory; e.g. Gray 2005 ch. 8).
+# H- : electron affinity of H 0.754 eV (from memory; e.g. Gray 2005 ch. 8;
+# docs/references.md#atomic-and-molecular-data).
 CHI_HMINUS = 0.754
