@@ -47,14 +47,13 @@ from ..observe._text import read_text_table, to_float
 from ..observe._units import flux_to_flam, parse_unit, wave_to_A
 from ..observe.airvac import air_to_vacuum
 from .grid import AXES, Grid
+from .resample import log_uniform_overlap, rebin_flux_conserving
 
 __all__ = ["import_grid", "log_uniform_overlap", "read_param_table", "rebin_flux_conserving"]
 
 # Two axes closer than this relative difference are the same axis (unit and
 # air->vacuum round-off is ~1e-14; 1e-9 is 0.3 m/s; common practice, no source).
 _SAME_AXIS_RTOL = 1e-9
-# Refuse to build a wavelength axis longer than this (memory guard, no source).
-_MAX_PIXELS = 5_000_000
 _TRUE = {"true", "t", "yes", "y", "1", "air", "awav"}
 _FALSE = {"false", "f", "no", "n", "0", "vacuum", "vac", "wave"}
 _MISSING = {"", "--", "none", "nan", "null"}
@@ -221,65 +220,6 @@ def _read_model(path, row_units, row_air, air, wave_unit, flux_unit):
 
 
 # ---------------------------------------------------------------------- wavelengths
-def log_uniform_overlap(waves):
-    """Overlap of the axes ``waves``, log-uniform with the finest median ln-step among them."""
-    lo = max(float(w[0]) for w in waves)
-    hi = min(float(w[-1]) for w in waves)
-    if not hi > lo:
-        raise GridError(f"the model spectra have no common wavelength range "
-                        f"(latest start {lo:.6g} A, earliest end {hi:.6g} A)")
-    steps = []
-    for w in waves:
-        inside = w[(w >= lo) & (w <= hi)]
-        d = np.diff(np.log(inside if inside.size > 1 else w))
-        steps.append(float(np.median(d)))
-    span = np.log(hi / lo)
-    n = int(np.ceil(span / min(steps) - 1e-9)) + 1
-    if n > _MAX_PIXELS:
-        raise GridError(f"the common axis would have {n} pixels (> {_MAX_PIXELS}); pass wave=")
-    out = lo * np.exp(np.linspace(0.0, span, max(n, 2)))
-    out[0], out[-1] = lo, hi
-    return out
-
-
-def rebin_flux_conserving(wave_in, flux_in, wave_out):
-    """Mean of the piecewise-linear ``flux_in`` over each output pixel's extent.
-
-    Pixel edges lie midway between output pixels (half a pixel beyond the ends). Where
-    an edge falls outside ``wave_in`` the pixel's extent is shrunk symmetrically about
-    the pixel (so the mean stays centred on it; a pixel exactly at an end of
-    ``wave_in`` gets the end value). ``wave_out`` must lie inside ``wave_in``. Works on
-    the last axis of ``flux_in``.
-    """
-    x = np.asarray(wave_in, float)
-    y = np.asarray(flux_in, float)
-    xo = np.asarray(wave_out, float)
-    if xo.size == 1:
-        return np.interp(xo, x, y)
-    mid = 0.5 * (xo[1:] + xo[:-1])
-    lo = np.concatenate([[2.0 * xo[0] - mid[0]], mid])
-    hi = np.concatenate([mid, [2.0 * xo[-1] - mid[-1]]])
-    clipped = (lo < x[0]) | (hi > x[-1])
-    a = xo - np.maximum(lo, x[0])
-    b = np.minimum(hi, x[-1]) - xo
-    a, b = np.where(clipped, np.minimum(a, b), a), np.where(clipped, np.minimum(a, b), b)
-    cum = np.concatenate([np.zeros((*y.shape[:-1], 1)),
-                          np.cumsum(0.5 * (y[..., 1:] + y[..., :-1]) * np.diff(x), axis=-1)],
-                         axis=-1)
-
-    def integral(e):
-        i = np.clip(np.searchsorted(x, e, side="right") - 1, 0, x.size - 2)
-        dx = e - x[i]
-        slope = (y[..., i + 1] - y[..., i]) / (x[i + 1] - x[i])
-        return cum[..., i] + y[..., i] * dx + 0.5 * slope * dx**2
-
-    width = a + b
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = (integral(xo + b) - integral(xo - a)) / width
-    end_value = np.where(xo <= x[0], y[..., :1], y[..., -1:])  # zero width: xo is an end
-    return np.where(width > 0, mean, end_value)
-
-
 def _same_axis(a, b):
     return a.size == b.size and bool(np.all(np.abs(a - b) <= _SAME_AXIS_RTOL * np.abs(b)))
 
@@ -330,71 +270,19 @@ def import_grid(folder, table, *, air=False, wave_unit=None, flux_unit=None, wav
     if not folder.is_dir():
         raise GridError(f"{folder}: model folder not found")
     table = _resolve_table(folder, table)
-    cols = read_param_table(table)
-    params = {ax: to_float(cols[ax], file=table, column=ax) for ax in AXES}
-    n = cols["file"].size
-    for ax in AXES:
-        bad = np.flatnonzero(~np.isfinite(params[ax]))
-        if bad.size:
-            raise GridError(f"{table}: row {bad[0] + 1}, column {ax!r}: should be a finite number "
-                            f"but got {cols[ax][bad[0]]!r}")
-    seen = {}
-    for r in range(n):
-        key = tuple(float(params[ax][r]) for ax in AXES)
-        if key in seen:
-            raise GridError(f"{table}: rows {seen[key] + 1} and {r + 1} both have teff={key[0]:g} "
-                            f"logg={key[1]:g} mh={key[2]:g} ({cols['file'][seen[key]]}, "
-                            f"{cols['file'][r]})")
-        seen[key] = r
-
-    waves, fluxes, hows = [], [], []
-    for r in range(n):
-        fname = _row_value(cols, "file", r)
-        if fname is None:
-            raise GridError(f"{table}: row {r + 1}, column 'file' is empty")
-        path = folder / fname
-        if not path.is_file():
-            raise GridError(f"{table}: row {r + 1}: model file {path} not found")
-        units = (_row_value(cols, "wave_unit", r), _row_value(cols, "flux_unit", r))
-        w, f, how = _read_model(path, units, _row_air(cols, r, table), air, wave_unit, flux_unit)
-        if waves and _same_axis(w, waves[-1]) and not how["native"]:
-            w = waves[-1]  # share one array per distinct axis (memory)
-        waves.append(w)
-        fluxes.append(np.log10(f).astype(np.float32))  # what the grid stores
-        hows.append(how)
-
-    if wave is not None:
-        out = np.asarray(wave, dtype=float)
-        if out.ndim != 1 or out.size < 1 or not np.all(np.isfinite(out)) or \
-                np.any(np.diff(out) <= 0):
-            raise GridError("wave should be a finite, strictly increasing 1-D array")
-        for r, w in enumerate(waves):
-            if out[0] < w[0] or out[-1] > w[-1]:
-                raise GridError(f"{folder / cols['file'][r]}: covers {w[0]:.6g}-{w[-1]:.6g} A "
-                                f"but wave= needs {out[0]:.6g}-{out[-1]:.6g} A")
-        axis_note = f"given: {out.size} pixels, resampled flux-conservingly"
-        shared = False
-    else:
-        ref = next((k for k, h in enumerate(hows) if h["native"]), 0)
-        shared = all(_same_axis(w, waves[ref]) for w in waves)
-        if shared:
-            out = waves[ref].copy()
-            axis_note = f"shared by all models, kept exactly ({out.size} pixels)"
-        else:
-            out = log_uniform_overlap(waves)
-            axis_note = (f"overlap {out[0]:.6g}-{out[-1]:.6g} A, log-uniform, {out.size} pixels "
-                         f"(finest model step), resampled flux-conservingly")
-
+    cols, params = _read_params(table)
+    waves, fluxes, hows = _read_models(folder, table, cols, air, wave_unit, flux_unit)
+    out, axis_note, shared = _output_axis(wave, waves, hows, folder, cols)
     axes = {ax: np.unique(params[ax]) for ax in AXES}
     log_flux = np.full((*tuple(a.size for a in axes.values()), out.size), np.nan, np.float32)
-    for r in range(n):
+    for r in range(cols["file"].size):
         idx = tuple(int(np.searchsorted(axes[ax], params[ax][r])) for ax in AXES)
         if shared:
             log_flux[idx] = fluxes[r]
         else:
             f = rebin_flux_conserving(waves[r], 10.0 ** fluxes[r].astype(float), out)
             log_flux[idx] = np.log10(f)
-
+    n = cols["file"].size
     prov = {
         "importer": "teffmc grid import (teffmc.photosphere.importer)",
         "source_folder": str(folder.resolve()),
@@ -414,3 +302,65 @@ def import_grid(folder, table, *, air=False, wave_unit=None, flux_unit=None, wav
     prov["holes"] = f"{len(holes)}: {listing}" if holes else "0"
     return Grid(grid.teff, grid.logg, grid.mh, grid.wave, grid.log_flux, provenance=prov,
                 name=grid.name)
+
+
+def _read_params(table):
+    """The parameter table's columns and its finite, distinct (teff, logg, mh) rows."""
+    cols = read_param_table(table)
+    params = {ax: to_float(cols[ax], file=table, column=ax) for ax in AXES}
+    for ax in AXES:
+        bad = np.flatnonzero(~np.isfinite(params[ax]))
+        if bad.size:
+            raise GridError(f"{table}: row {bad[0] + 1}, column {ax!r}: should be a finite number "
+                            f"but got {cols[ax][bad[0]]!r}")
+    seen = {}
+    for r in range(cols["file"].size):
+        key = tuple(float(params[ax][r]) for ax in AXES)
+        if key in seen:
+            raise GridError(f"{table}: rows {seen[key] + 1} and {r + 1} both have teff={key[0]:g} "
+                            f"logg={key[1]:g} mh={key[2]:g} ({cols['file'][seen[key]]}, "
+                            f"{cols['file'][r]})")
+        seen[key] = r
+    return cols, params
+
+
+def _read_models(folder, table, cols, air, wave_unit, flux_unit):
+    """Every row's model: vacuum Angstrom axes, log10 F_lambda (float32), how it was read."""
+    waves, fluxes, hows = [], [], []
+    for r in range(cols["file"].size):
+        fname = _row_value(cols, "file", r)
+        if fname is None:
+            raise GridError(f"{table}: row {r + 1}, column 'file' is empty")
+        path = folder / fname
+        if not path.is_file():
+            raise GridError(f"{table}: row {r + 1}: model file {path} not found")
+        units = (_row_value(cols, "wave_unit", r), _row_value(cols, "flux_unit", r))
+        w, f, how = _read_model(path, units, _row_air(cols, r, table), air, wave_unit, flux_unit)
+        if waves and _same_axis(w, waves[-1]) and not how["native"]:
+            w = waves[-1]  # share one array per distinct axis (memory)
+        waves.append(w)
+        fluxes.append(np.log10(f).astype(np.float32))  # what the grid stores
+        hows.append(how)
+    return waves, fluxes, hows
+
+
+def _output_axis(wave, waves, hows, folder, cols):
+    """The grid's wavelength axis (module docstring), a note on it, and whether it is
+    every model's own axis (no resampling)."""
+    if wave is not None:
+        out = np.asarray(wave, dtype=float)
+        if out.ndim != 1 or out.size < 1 or not np.all(np.isfinite(out)) or \
+                np.any(np.diff(out) <= 0):
+            raise GridError("wave should be a finite, strictly increasing 1-D array")
+        for r, w in enumerate(waves):
+            if out[0] < w[0] or out[-1] > w[-1]:
+                raise GridError(f"{folder / cols['file'][r]}: covers {w[0]:.6g}-{w[-1]:.6g} A "
+                                f"but wave= needs {out[0]:.6g}-{out[-1]:.6g} A")
+        return out, f"given: {out.size} pixels, resampled flux-conservingly", False
+    ref = next((k for k, h in enumerate(hows) if h["native"]), 0)
+    if all(_same_axis(w, waves[ref]) for w in waves):
+        out = waves[ref].copy()
+        return out, f"shared by all models, kept exactly ({out.size} pixels)", True
+    out = log_uniform_overlap(waves)
+    return out, (f"overlap {out[0]:.6g}-{out[-1]:.6g} A, log-uniform, {out.size} pixels "
+                 f"(finest model step), resampled flux-conservingly"), False
