@@ -20,13 +20,12 @@ radius). The order matters when the effects interact; it is stated in the output
 
 import numpy as np
 
+from .components import all_parameters
+
 __all__ = ["GROUPS", "dimming_budget"]
 
-GROUPS = {
-    "temperature": ("teff", "logg", "mh", "patch_cover", "patch_dteff"),
-    "veil": ("veil_tau", "veil_cover", "grain_radius", "veil_scatter", "a_v", "r_v"),
-    "radius": ("theta",),
-}
+GROUPS = {g: tuple(n for n, d in all_parameters().items() if d.group == g)
+          for g in ("temperature", "veil", "radius")}   # declared by teffmc.components
 
 
 def dimming_budget(v_of, pa, pb):

@@ -15,15 +15,13 @@ from scipy import special
 from .dust.extinction import LAWS
 from .dust.materials import MATERIALS
 from .errors import ConfigError
+from .parameters import DEFAULT_SHARED
 from .priors import PRIOR_KINDS, Prior
 
 __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_config",
            "parse_config"]
 
 VEILS = ("none", "grey", "mie")
-DEFAULT_SHARED = ("logg", "mh", "a_v", "r_v", "grain_radius", "veil_scatter", "jitter",
-                  "mismatch_amp", "mismatch_scale", "mismatch_white", "tio_scale",
-                  "haze_scale")
 #: model-mismatch term of a spectrum (teffmc.likelihood.mismatch); the default is the
 #: one a careful user wants for a real star: no grid reproduces it pixel by pixel
 MISMATCH_KINDS = ("none", "white", "correlated")

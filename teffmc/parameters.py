@@ -11,35 +11,39 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .components import active_parameters, all_parameters
+from .components.patches import PARAMETERS as _PATCH
 from .errors import ConfigError
 from .priors import Prior
 
-__all__ = ["ParameterSpace", "model_parameters", "UNITS", "LABELS", "POSITIVE"]
+__all__ = ["ParameterSpace", "model_parameters", "parameter_limits", "UNITS", "LABELS",
+           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS"]
 
-#: every parameter any model variant can have
-ALL_PARAMETERS = ("teff", "logg", "mh", "theta", "a_v", "r_v", "jitter", "veil_tau",
-                  "veil_cover", "grain_radius", "veil_scatter", "patch_cover", "patch_dteff",
-                  "mismatch_amp", "mismatch_scale", "mismatch_white")
-#: the built-in grid's nuisance parameters (teffmc.photosphere.nuisance)
+_DECL = all_parameters()
+#: every parameter any model variant can have (declared by teffmc.components)
+ALL_PARAMETERS = tuple(_DECL)
+#: the built-in grid's nuisance parameters (declared by the grid file; always shared)
 NUISANCE_PARAMETERS = ("tio_scale", "haze_scale")
-#: parameters that enter only through their square or a logarithm: must stay > 0
-POSITIVE = ("theta", "jitter", "grain_radius", "mismatch_amp", "mismatch_scale", "mismatch_white",
-            *NUISANCE_PARAMETERS)
-
-#: physical limits of parameters, whatever the model: (low, high, why)
-LIMITS = {"a_v": (0.0, math.inf, "extinction cannot be negative"),
-          "veil_tau": (0.0, math.inf, "an optical depth cannot be negative"),
-          "veil_cover": (0.0, 1.0, "a covering fraction lies in [0, 1]"),
-          "veil_scatter": (0.0, 1.0, "a scattered-light fraction lies in [0, 1]"),
-          "patch_cover": (0.0, 1.0, "a covering fraction lies in [0, 1]"),
-          "patch_dteff": (0.0, math.inf, "the patches are cooler than the photosphere")}
+#: parameters that must stay > 0 (they enter through a logarithm or a square)
+POSITIVE = tuple(n for n, d in _DECL.items() if d.open_low) + NUISANCE_PARAMETERS
+#: physical limits of parameters, whatever the model: {name: (low, high, why)}
+LIMITS = {n: (d.low, d.high, d.why) for n, d in _DECL.items()
+          if (d.low > -math.inf or d.high < math.inf) and not d.open_low}
+#: parameters common to all epochs unless the config's ``shared`` says otherwise
+DEFAULT_SHARED = tuple(n for n, d in _DECL.items() if d.shared) + NUISANCE_PARAMETERS
+PATCH_PARAMETERS = tuple(d.name for d in _PATCH)
+UNITS = {**{n: d.unit for n, d in _DECL.items()}, "tio_scale": "", "haze_scale": "",
+         "rv_kms": "km/s", "distance_pc": "pc"}
+LABELS = {**{n: d.label for n, d in _DECL.items()}, "tio_scale": r"$s_\mathrm{TiO}$",
+          "haze_scale": r"$s_\mathrm{haze}$", "distance_pc": "d [pc]"}
 
 
 def parameter_limits(base, model):
     """(low, high, why) the core accepts for one parameter of ``model``, or None.
 
-    Beyond :data:`LIMITS`: R_V within the extinction law's calibrated range and the
-    grain radius within the optics table's.
+    The declared physical limits (:mod:`teffmc.components`), and where they depend on
+    the model: R_V within the extinction law's calibrated range, the grain radius within
+    the optics table's.
     """
     if base == "r_v":
         from .dust.extinction import law_ranges
@@ -51,23 +55,6 @@ def parameter_limits(base, model):
 
         return (*RADIUS_RANGE, "the grain radii [micron] of the optics table")
     return LIMITS.get(base)
-
-
-UNITS = {"teff": "K", "logg": "dex", "mh": "dex", "a_v": "mag", "r_v": "", "theta": "mas",
-         "veil_tau": "", "veil_cover": "", "grain_radius": "um", "veil_scatter": "",
-         "patch_cover": "", "patch_dteff": "K", "rv_kms": "km/s", "jitter": "",
-         "distance_pc": "pc", "mismatch_amp": "", "mismatch_scale": "km/s", "mismatch_white": "",
-         "tio_scale": "",
-         "haze_scale": ""}
-LABELS = {"teff": r"$T_\mathrm{eff}$ [K]", "logg": r"$\log g$", "mh": "[M/H]",
-          "a_v": r"$A_V$", "r_v": r"$R_V$", "theta": r"$\theta$ [mas]",
-          "veil_tau": r"$\tau_\mathrm{veil}$", "veil_cover": r"$f_\mathrm{veil}$",
-          "grain_radius": r"$a$ [µm]", "veil_scatter": r"$s_\mathrm{veil}$",
-          "patch_cover": r"$f_\mathrm{patch}$", "patch_dteff": r"$\Delta T_\mathrm{patch}$",
-          "jitter": "jitter", "distance_pc": "d [pc]",
-          "mismatch_amp": r"$\sigma_\mathrm{mis}$", "mismatch_scale": r"$\rho_\mathrm{mis}$ [km/s]",
-          "mismatch_white": r"$\sigma_\mathrm{pix}$",
-          "tio_scale": r"$s_\mathrm{TiO}$", "haze_scale": r"$s_\mathrm{haze}$"}
 
 
 def model_parameters(model, grid_bounds, nuisance=()):
@@ -82,51 +69,21 @@ def model_parameters(model, grid_bounds, nuisance=()):
         The grid's nuisance axes (sampled as ``<name>_scale`` when
         ``model.grid_nuisance``).
     """
-    def axis_prior(axis):  # a grid with one node on an axis fixes that parameter
-        lo, hi = grid_bounds[axis]
-        return Prior("uniform", low=lo, high=hi) if hi > lo else Prior("fixed", value=lo)
-
-    p = {
-        "teff": axis_prior("teff"),
-        "logg": axis_prior("logg"),
-        "mh": axis_prior("mh"),
-        "theta": Prior("loguniform", low=1e-3, high=1e3),
-        "a_v": Prior("uniform", low=0.0, high=10.0),
-        "r_v": Prior("fixed", value=3.1),
-        "jitter": Prior("fixed", value=1.0),
-    }
-    if model.veil != "none":
-        p["veil_tau"] = Prior("uniform", low=0.0, high=5.0)
-        p["veil_cover"] = Prior("uniform", low=0.0, high=1.0)
-    if model.veil == "mie":
-        p["grain_radius"] = Prior("loguniform", low=0.02, high=5.0)
-        if model.scattering:
-            p["veil_scatter"] = Prior("uniform", low=0.0, high=1.0)
-    if model.mismatch_terms:
-        # grid-mismatch amplitude as a fraction of the model flux: 0.1 % (a grid as good as
-        # the data) to 50 % (a band the grid lacks); log-uniform, common practice, no source
-        p["mismatch_amp"] = Prior("loguniform", low=1e-3, high=0.5)
-    if "correlated" in model.mismatch_terms:
-        # correlation length [km/s]: from a few resolution elements at R ~ 10^4 (a line
-        # the grid lacks) to a molecular band's width (~3 % of the wavelength; longer
-        # scales are the calibration polynomial's); common practice, no source. Two
-        # decades: where the data do not constrain it (a grid that fits), a wider prior
-        # only lengthens the chain.
-        p["mismatch_scale"] = Prior("loguniform", low=100.0, high=10000.0)
-        # and an independent per-pixel part (a fraction of the model flux): errors of
-        # single lines and of the line-spread function decorrelate within a resolution
-        # element. Without it the one correlation length has to serve both and sits at
-        # the pixel scale, where it lets band-wide errors through (measured, cross-model
-        # injections: docs/coverage in the README). 1e-4 (nothing) to 30 %; log-uniform,
-        # common practice, no source
-        p["mismatch_white"] = Prior("loguniform", low=1e-4, high=0.3)
+    active = active_parameters(model)
+    p = {}
+    for name, d in active.items():
+        if name in PATCH_PARAMETERS:
+            continue
+        p[name] = d.default_prior(model, grid_bounds)
     if getattr(model, "grid_nuisance", True):
         for a in nuisance:
             # the grid's own declared range of the uncertain input (see its note)
             p[a.parameter] = Prior("loguniform", low=a.low, high=a.high)
-    if model.patches:
-        p["patch_cover"] = Prior("uniform", low=0.0, high=0.9)
-        p["patch_dteff"] = Prior("uniform", low=0.0, high=1500.0)
+    # the cool-patch parameters come after the nuisances (the vector layout of runs
+    # made before the components were declared)
+    for name in PATCH_PARAMETERS:
+        if name in active:
+            p[name] = active[name].default_prior(model, grid_bounds)
     return p
 
 

@@ -1,0 +1,37 @@
+"""The declaration of one model parameter."""
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from ..priors import Prior
+
+__all__ = ["Param"]
+
+
+@dataclass(frozen=True)
+class Param:
+    """One parameter as its component declares it.
+
+    ``prior`` is the default prior, or a function ``(model, grid_bounds) -> Prior`` when
+    it depends on them; ``low``/``high`` the physical limits any prior must respect
+    (``why`` says where they come from; ``open_low`` for a strict ``> low``);
+    ``shared`` whether epochs share it unless the config says otherwise; ``group`` its
+    dimming-budget group (``teffmc.budget``: temperature, veil, radius) or None;
+    ``active`` an extra condition on the model variant beyond the component's.
+    """
+
+    name: str
+    unit: str
+    label: str
+    prior: Prior | Callable
+    low: float = -math.inf
+    high: float = math.inf
+    why: str = ""
+    open_low: bool = False
+    shared: bool = False
+    group: str | None = None
+    active: Callable | None = None
+
+    def default_prior(self, model, grid_bounds):
+        return self.prior(model, grid_bounds) if callable(self.prior) else self.prior

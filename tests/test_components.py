@@ -1,0 +1,69 @@
+"""The parameter declarations of the model components and the tables built from them."""
+
+import math
+
+import pytest
+
+from teffmc import parameters as P
+from teffmc.budget import GROUPS
+from teffmc.components import COMPONENTS, Param, active_parameters, all_parameters
+from teffmc.config import ModelSpec
+
+BOUNDS = {"teff": (2600.0, 4500.0), "logg": (-1.0, 5.0), "mh": (-1.0, 0.5)}
+FULL = ModelSpec(veil="mie", scattering=True, patches=True, mismatch_terms=("correlated",))
+
+
+def test_every_parameter_declared_once_with_unit_and_label():
+    names = [p.name for c in COMPONENTS for p in c.PARAMETERS]
+    assert len(names) == len(set(names))
+    for p in all_parameters().values():
+        assert isinstance(p, Param) and p.label and p.unit is not None
+
+
+def test_default_priors_respect_the_limits():
+    # a default prior outside a parameter's own limits would be refused by the config
+    # check: every default of the fullest model variant passes it
+    for name, prior in P.model_parameters(FULL, BOUNDS).items():
+        lim = P.parameter_limits(name, FULL)
+        if lim is None:
+            continue
+        lo, hi = prior.support
+        assert lim[0] <= lo and hi <= lim[1], (name, prior, lim)
+        if name in P.POSITIVE:
+            assert lo > 0, name
+
+
+def test_vector_layout_unchanged():
+    # the order of the sampled vector (and so of every stored draw) is the one runs had
+    # before the components declared their parameters
+    assert list(P.model_parameters(FULL, BOUNDS)) == [
+        "teff", "logg", "mh", "theta", "a_v", "r_v", "jitter", "veil_tau", "veil_cover",
+        "grain_radius", "veil_scatter", "mismatch_amp", "mismatch_scale", "mismatch_white",
+        "patch_cover", "patch_dteff"]
+    plain = ModelSpec(mismatch_terms=())
+    assert list(P.model_parameters(plain, BOUNDS)) == [
+        "teff", "logg", "mh", "theta", "a_v", "r_v", "jitter"]
+
+
+@pytest.mark.parametrize("model, present, absent", [
+    (ModelSpec(veil="grey", mismatch_terms=()), {"veil_tau", "veil_cover"},
+     {"grain_radius", "veil_scatter", "patch_cover", "mismatch_amp"}),
+    (ModelSpec(veil="mie", mismatch_terms=("white",)), {"grain_radius", "mismatch_amp"},
+     {"veil_scatter", "mismatch_scale", "mismatch_white"}),
+])
+def test_active_follows_the_model(model, present, absent):
+    names = set(active_parameters(model))
+    assert present <= names and not (absent & names)
+
+
+def test_tables_built_from_the_declarations():
+    decl = all_parameters()
+    assert set(P.DEFAULT_SHARED) == {n for n, d in decl.items() if d.shared} | set(
+        P.NUISANCE_PARAMETERS)
+    grouped = {n for g in GROUPS.values() for n in g}
+    assert grouped == {n for n, d in decl.items() if d.group}
+    assert GROUPS["radius"] == ("theta",)
+    for n, d in decl.items():
+        assert P.UNITS[n] == d.unit and P.LABELS[n] == d.label
+    assert P.LIMITS["veil_cover"][:2] == (0.0, 1.0)
+    assert P.LIMITS["a_v"][:2] == (0.0, math.inf)
