@@ -8,8 +8,10 @@ and keeps one table, ``OUT/batch.ecsv``, with a row per star. Design:
   per worker in flight; if a worker process dies (a crash, the out-of-memory killer) the
   stars in flight are tried again one at a time in fresh pools, and the one whose worker
   dies alone is recorded as failed;
-- a star whose folder already holds a finished run (``summary.json``, or
-  ``compare.json`` for a config with hypotheses) is skipped unless ``redo``: re-running
+- one batch per folder: the batch holds ``OUT/.batch-lock`` (teffmc.runfolder), a
+  second batch into the same folder is refused (exit 2, naming the holder);
+- a star whose folder already holds a finished run (a valid completion marker
+  ``complete.json``, see teffmc.runfolder) is skipped unless ``redo``: re-running
   the same command resumes an interrupted batch; a star cut off mid-fit continues from
   its sampler checkpoint (``OUT/<stem>.partial/chain.h5``);
 - any exception in one star (bad config, bad data, a prior off the grid, a bug) is
@@ -31,6 +33,7 @@ from collections import deque
 from pathlib import Path
 
 from .errors import ConfigError, TeffmcError
+from .runfolder import batch_lock, finished_run
 
 __all__ = ["fit_many", "read_config_list", "finished_summary", "STATUSES"]
 
@@ -86,18 +89,8 @@ def _plan(configs, out):
 def finished_summary(folder):
     """``summary.json`` of the finished run in ``folder`` (the best-ranked hypothesis for a
     config with hypotheses), or None when the folder holds no finished run."""
-    folder = Path(folder)
-    if (folder / "summary.json").is_file():
-        return folder / "summary.json"
-    comp = folder / "compare.json"
-    if comp.is_file():
-        try:
-            best = json.loads(comp.read_text(encoding="utf-8"))["runs"][0]["run"]
-        except (OSError, ValueError, KeyError, IndexError, TypeError):
-            return None
-        if (folder / best / "summary.json").is_file():
-            return folder / best / "summary.json"
-    return None
+    run = finished_run(folder)  # decided by the completion marker, written last
+    return None if run is None else run / "summary.json"
 
 
 # ---------------------------------------------------------------- in the worker processes
@@ -160,7 +153,7 @@ def _fit_star(config, out, redo):
             resume = not redo  # fit() resumes or keeps each hypothesis's run as it finds it
         else:
             resume = not redo and (out.with_name(out.name + ".partial") / "chain.h5").is_file()
-        res = fit(cfg, out, resume=resume, quiet=True)
+        res = fit(cfg, out, resume=resume, quiet=True, overwrite=True)  # batch owns `out`
         return {"ok": True, "wall": wall(), "summary": str(res.out / "summary.json")}
     except Exception as exc:  # one star's failure must not stop the survey
         tb = None if isinstance(exc, TeffmcError) else traceback.format_exc()
@@ -331,7 +324,6 @@ def fit_many(configs, out, workers=1, redo=False, quiet=True):
         No configs, two configs with the same stem, ``out`` not a folder, or
         ``workers`` < 1 -- before anything is written.
     """
-    from . import __version__
 
     if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
         raise ConfigError(f"should be an integer >= 1 but got {workers!r}", key="--workers",
@@ -340,6 +332,13 @@ def fit_many(configs, out, workers=1, redo=False, quiet=True):
     plan = _plan(configs, out)
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
+    with batch_lock(out):  # one batch per folder
+        return _fit_many_locked(plan, out, workers, redo, quiet)
+
+
+def _fit_many_locked(plan, out, workers, redo, quiet):
+    from . import __version__
+
     table_path = out / TABLE
     old_wall = _previous_wall_times(table_path)
     rows, todo = [], []

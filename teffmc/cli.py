@@ -23,7 +23,8 @@ __all__ = ["main"]
 def _cmd_fit(args):
     from .run import fit, summary_to_text
 
-    res = fit(args.config, args.out, resume=args.resume, quiet=args.quiet)
+    res = fit(args.config, args.out, resume=args.resume, quiet=args.quiet,
+              overwrite=args.overwrite)
     print(summary_to_text(res.summary))
     print(f"run folder: {res.out}")
     return 0
@@ -49,14 +50,19 @@ def _sigterm_as_interrupt():
         yield
         return
 
-    def stop(signum, frame):
-        raise KeyboardInterrupt
+    from .interrupt import STOP, request_stop
 
-    old = signal.signal(signal.SIGTERM, stop)
+    STOP["requested"] = False
+    sigs = [signal.SIGTERM]
+    if signal.getsignal(signal.SIGINT) is signal.default_int_handler:  # not when ignored
+        sigs.append(signal.SIGINT)  # the same handler: see teffmc.interrupt.STOP
+    old = {s: signal.signal(s, request_stop) for s in sigs}
     try:
         yield
     finally:
-        signal.signal(signal.SIGTERM, old)
+        for s, h in old.items():
+            signal.signal(s, h)
+        STOP["requested"] = False
 
 
 def _interrupted(args):
@@ -148,6 +154,9 @@ def build_parser():
     f.add_argument("config", help="TOML config file")
     f.add_argument("--out", help="run folder (default: run-<config name> beside the config)")
     f.add_argument("--resume", action="store_true", help="continue an interrupted run")
+    f.add_argument("--overwrite", action="store_true",
+                   help="replace the run already in the run folder (it is kept until the "
+                   "new run is finished)")
     f.add_argument("--quiet", action="store_true", help="no progress bar or log lines")
     f.set_defaults(func=_cmd_fit)
 

@@ -320,6 +320,9 @@ def parse_config(table, path="<config>"):
     m.done()
 
     epochs_raw = top.get("epoch", list, None, required=True)
+    if not epochs_raw:
+        raise top.err("epoch", "is empty: give at least one [[epoch]] table with a spectrum "
+                      "or a photometry file", epochs_raw)
     epochs = []
     for i, t in enumerate(epochs_raw):
         if not isinstance(t, dict):
@@ -432,4 +435,7 @@ def load_config(path):
         table = tomllib.loads(path.read_text(encoding="utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise ConfigError(f"not valid TOML ({exc})", file=str(path)) from None
+    except OSError as exc:  # a folder, no permission, ...
+        raise ConfigError(f"cannot read the config file ({exc.strerror or exc})",
+                          file=str(path)) from None
     return parse_config(table, path)

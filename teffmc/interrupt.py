@@ -7,7 +7,19 @@ a run with a screen of traceback. :class:`DeferredInterrupt` holds it back to th
 the sampler step, where the driver raises it outside the library's wrapper.
 """
 
-__all__ = ["DeferredInterrupt"]
+__all__ = ["DeferredInterrupt", "request_stop", "STOP"]
+
+#: set by the command line's signal handler (:func:`request_stop`). A KeyboardInterrupt
+#: raised by a signal handler is lost when the signal lands while Python runs a weakref
+#: or ``__del__`` callback (it is printed as "Exception ignored" and the run goes on);
+#: :meth:`DeferredInterrupt.check` also looks here, so the next step stops anyway.
+STOP = {"requested": False}
+
+
+def request_stop(signum=None, frame=None):
+    """Signal handler: remember the request and raise KeyboardInterrupt."""
+    STOP["requested"] = True
+    raise KeyboardInterrupt
 
 
 class DeferredInterrupt:
@@ -34,6 +46,6 @@ class DeferredInterrupt:
     def check(self, *args, **kwargs):
         """Raise the held-back KeyboardInterrupt, if any (ignores its arguments, so it
         can serve as a library's per-iteration callback)."""
-        if self.pending:
-            self.pending = False
+        if self.pending or STOP["requested"]:
+            self.pending = STOP["requested"] = False
             raise KeyboardInterrupt

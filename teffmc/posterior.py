@@ -82,12 +82,18 @@ def load(path):
 
 
 def load_run(run_dir):
-    """A finished run folder's (DataTree from posterior.nc, dict from summary.json)."""
+    """A finished run folder's (DataTree from posterior.nc, dict from summary.json).
+
+    Only a folder with a valid completion marker is read (teffmc.runfolder): anything
+    else raises DataError saying why (interrupted, being written, a file changed)."""
+    from .runfolder import check_complete
+
     run_dir = Path(run_dir)
+    run = check_complete(run_dir)
+    if run.resolve() != run_dir.resolve():
+        raise DataError(f"holds several runs (hypotheses or grids); give one of them, e.g. "
+                        f"{run}", file=str(run_dir))
     nc, sj = run_dir / "posterior.nc", run_dir / "summary.json"
-    for f in (nc, sj):
-        if not f.exists():
-            raise DataError("not a finished teffmc run folder (file missing)", file=str(f))
     return load(nc), json.loads(sj.read_text(encoding="utf-8"))
 
 

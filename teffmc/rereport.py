@@ -8,7 +8,9 @@ import numpy as np
 
 from . import posterior as post_mod
 from .errors import ConfigError, DataError
-from .report import corner_figure, fit_figure, write_summary
+from .report import corner_figure, fit_figure
+from .report.tables import write_summary_ecsv
+from .runfolder import check_complete, run_lock
 
 __all__ = ["panels_from_posterior", "redraw", "parse_formats", "write_tables", "TABLE_FORMATS"]
 
@@ -31,16 +33,22 @@ def panels_from_posterior(dt):
 
 
 def redraw(run_dir):
-    """Redraw corner.png, fit.png and the summary tables of ``run_dir``."""
+    """Redraw corner.png, fit.png and summary.ecsv of the finished run ``run_dir``.
+
+    The run's sources (posterior.nc, summary.json: checksummed by its completion marker)
+    are only read, so a report killed midway leaves a finished run finished."""
     run_dir = Path(run_dir)
-    dt, summary = post_mod.load_run(run_dir)
-    names = json.loads(dt.attrs["sampled_names"])
-    samples = np.column_stack([post_mod.draws(dt, n) for n in names])
-    converged = bool(summary["converged"])
-    title = dt.attrs.get("title", run_dir.name)
-    corner_figure(samples, names, run_dir / "corner.png", converged=converged, title=title)
-    fit_figure(panels_from_posterior(dt), run_dir / "fit.png", converged=converged, title=title)
-    write_summary(summary, run_dir / "summary.json", run_dir / "summary.ecsv")
+    with run_lock(run_dir):
+        dt, summary = post_mod.load_run(run_dir)
+        names = json.loads(dt.attrs["sampled_names"])
+        samples = np.column_stack([post_mod.draws(dt, n) for n in names])
+        converged = bool(summary["converged"])
+        title = dt.attrs.get("title", run_dir.name)
+        corner_figure(samples, names, run_dir / "corner.png", converged=converged,
+                      title=title)
+        fit_figure(panels_from_posterior(dt), run_dir / "fit.png", converged=converged,
+                   title=title)
+        write_summary_ecsv(summary, run_dir / "summary.ecsv")
 
 
 def parse_formats(text):
@@ -59,13 +67,19 @@ def write_tables(run_dir, formats):
     ``tex``: table.tex (plain LaTeX tabular) and table_aastex.tex (AASTeX deluxetable);
     ``csv``: table.csv. The star name for the caption comes from run.toml when present.
     """
-    from .report.latex import csv_table, latex_table
 
     run_dir = Path(run_dir)
-    sj = run_dir / "summary.json"
-    if not sj.is_file():
-        raise DataError("not a finished teffmc run folder (file missing)", file=str(sj))
-    summary = json.loads(sj.read_text(encoding="utf-8"))
+    with run_lock(run_dir):
+        if check_complete(run_dir).resolve() != run_dir.resolve():
+            raise DataError("holds several runs (hypotheses or grids); give one of them",
+                            file=str(run_dir))
+        return _write_tables(run_dir, formats)
+
+
+def _write_tables(run_dir, formats):
+    from .report.latex import csv_table, latex_table
+
+    summary = json.loads((run_dir / "summary.json").read_text(encoding="utf-8"))
     star = None
     if (run_dir / "run.toml").is_file():
         star = tomllib.loads((run_dir / "run.toml").read_text(encoding="utf-8")).get("name")

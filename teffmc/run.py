@@ -2,7 +2,8 @@
 
 Everything the user gave is read and validated before anything is written, so bad
 input leaves nothing behind. The run is built in ``OUT.partial/`` (which also holds
-the sampler checkpoint for ``--resume``) and renamed to ``OUT`` when complete.
+the sampler checkpoint for ``--resume``) and renamed to ``OUT`` when complete, its
+completion marker written last; one writer at a time (see :mod:`teffmc.runfolder`).
 """
 
 import json
@@ -23,6 +24,8 @@ from .errors import ConfigError, DataError, TeffmcError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
 from .parameters import ParameterSpace
+from .runfolder import (MARKER, discard, finish, finished_run, is_complete,
+                        remove_leftovers, run_lock, write_marker)
 
 __all__ = ["fit", "FitResult", "prepare", "Prepared"]
 
@@ -76,6 +79,9 @@ def _read_spectrum(spec):
         s = replace(s, wave=s.wave[keep], flux=s.flux[keep], err=s.err[keep],
                     mask=s.mask[keep])
     s = apply_masks(s, ranges=list(spec.mask), telluric=spec.telluric_mask)
+    if s.n_used < 2:  # apply_masks refuses 0
+        raise DataError(f"has {s.n_used} usable pixel; a spectrum needs at least 2",
+                        file=str(spec.file), column="wavelength", value=s.n_used)
     if spec.rv_kms:
         # to the star's rest frame: lambda_rest = lambda_obs / (1 + v/c), first order in
         # v/c (|v| < 300 km/s gives < 1e-6 error); telluric masks act in the observed frame
@@ -93,6 +99,7 @@ def prepare(config, grid=None, log=print, other_models=()):
     space = ParameterSpace(cfg, grid.bounds, other_models=other_models,
                            nuisance=getattr(grid, "nuisance", ()))
     require_free_parameters(space, cfg)
+    check_sampler_settings(space, cfg)
     channels = {}
     for ep in cfg.epochs:
         r_v_prior = space.prior_of("r_v", ep.label)
@@ -112,12 +119,45 @@ def prepare(config, grid=None, log=print, other_models=()):
                 calibration_sigma=spec.calibration_sigma, name=f"spectrum{i + 1}",
                 mismatch=spec.mismatch))
             log(f"epoch {ep.label}: spectrum {spec.file.name}, {chans[-1].n_points} pixels used")
+            for note in resolution_notes(spec, grid, s.wave):
+                log(f"epoch {ep.label}: spectrum {spec.file.name}: {note}")
         if ep.photometry is not None:
             phot = read_photometry(ep.photometry)
             chans.append(PhotometryChannel(phot, grid, cfg.model, r_v_prior))
             log(f"epoch {ep.label}: photometry {ep.photometry.name}, bands {', '.join(phot.bands)}")
         channels[ep.label] = chans
     return Prepared(cfg, grid, space, channels, Posterior(space, channels, grid))
+
+
+def resolution_notes(spec, grid, wave):
+    """What is assumed about a spectrum's line-spread function (for the log).
+
+    Without ``resolution`` or ``fwhm_A`` none is applied: the model is compared at the
+    grid's own sampling. A resolving power above the grid's -- taken as half its
+    sampling ``lambda / d lambda`` over the data's range (two pixels per resolution
+    element, the Nyquist rate; common practice, no source) -- cannot be matched: the
+    model stays broader than the data."""
+    from .photosphere.blackbody import BlackbodyGrid
+
+    if spec.resolution is None and spec.fwhm_A is None:
+        return ["WARNING: no resolution or fwhm_A given, so no line-spread function is "
+                "applied (the model is compared at the grid's own resolution)"]
+    if isinstance(grid, BlackbodyGrid):  # analytic: no lines, any resolution
+        return []
+    gw = np.asarray(grid.wave, float)
+    lo, hi = float(np.min(wave)), float(np.max(wave))
+    inside = (gw >= lo) & (gw <= hi)
+    if inside.sum() < 3:
+        return []
+    g = gw[inside]
+    r_grid = float(np.median(g[1:] / np.diff(g))) / 2.0
+    r_data = (spec.resolution if spec.resolution is not None
+              else float(np.median(wave)) / spec.fwhm_A)
+    if r_data > r_grid:
+        return [f"WARNING: resolution R = {r_data:.0f} is above the grid's (R about "
+                f"{r_grid:.0f} from its sampling); no line-spread function can make the "
+                "model as sharp as the data, so lines are compared broadened"]
+    return []
 
 
 def require_free_parameters(space, cfg):
@@ -129,13 +169,24 @@ def require_free_parameters(space, cfg):
                           file=str(cfg.path), key="priors", value=space.fixed_values())
 
 
+def check_sampler_settings(space, cfg):
+    """The ensemble sampler needs at least two walkers per free parameter: refuse fewer
+    before anything is written (the sampler would refuse them only after the start
+    search)."""
+    n = cfg.sampler.n_walkers
+    if n < 2 * space.ndim:
+        raise ConfigError(f"should be at least 2 x {space.ndim} free parameters = "
+                          f"{2 * space.ndim} but got {n} (free: {', '.join(space.names)})",
+                          file=str(cfg.path), key="sampler.n_walkers", value=n)
+
+
 def default_out(config_path):
     """The run folder of ``teffmc fit CONFIG`` without ``--out``: run-<stem> beside it."""
     config_path = Path(config_path)
     return config_path.parent / f"run-{config_path.stem}"
 
 
-def fit(config, out=None, *, resume=False, quiet=False):
+def fit(config, out=None, *, resume=False, quiet=False, overwrite=False):
     """Run the main job on a config file; write and return the run.
 
     A config that declares several ``[[hypothesis]]`` variants fits each into
@@ -151,12 +202,46 @@ def fit(config, out=None, *, resume=False, quiet=False):
         Continue an interrupted run from ``OUT.partial/chain.h5``.
     quiet : bool
         No progress bar and no log lines on stderr.
+    overwrite : bool
+        Replace a run already in ``OUT`` (without it, such an ``OUT`` is refused). The
+        old run stays whole until the new one is finished (see :mod:`teffmc.runfolder`).
+
+    Raises
+    ------
+    ConfigError
+        Also when another process is writing ``OUT`` (it holds ``OUT.lock``).
     """
     cfg = config if not isinstance(config, (str, Path)) else load_config(config)
-    out = Path(out) if out is not None else default_out(cfg.path)
+    out = Path(out if out is not None else default_out(cfg.path)).resolve()
+    check_out_folder(out)
+    with run_lock(out):
+        remove_leftovers(out)
+        check_replace(out, overwrite=overwrite, resume=resume)
+        return _fit_locked(cfg, out, resume=resume, quiet=quiet, overwrite=overwrite)
+
+
+def check_replace(out, *, overwrite, resume):
+    """Refuse to replace a run in ``out`` unless ``overwrite`` (or ``resume``: continuing
+    it)."""
+    if overwrite or resume or not out.is_dir() or not any(out.iterdir()):
+        return
+    if finished_run(out) is not None:
+        raise ConfigError("holds a finished run: give --overwrite to replace it, or choose "
+                          "another --out", key="--out", value=str(out))
+    raise ConfigError("holds an unfinished run (no valid completion marker): continue it "
+                      "with --resume, replace it with --overwrite, or choose another --out",
+                      key="--out", value=str(out))
+
+
+def _fit_locked(cfg, out, *, resume, quiet, overwrite):
+    variants = cfg.variants()
+    if len(cfg.grids) > 1 or len(variants) > 1:  # a folder of several runs
+        if overwrite and not resume:
+            discard(out)
+        else:  # worked on again: unfinished until its marker is written anew
+            (out / MARKER).unlink(missing_ok=True)
     if len(cfg.grids) > 1:
         return fit_grids(cfg, out, resume=resume, quiet=quiet)
-    variants = cfg.variants()
     if len(variants) == 1:   # no hypotheses, or one: its model, fitted into ``out``
         return fit_one(variants[0][1], out, resume=resume, quiet=quiet)
     from .compare import compare_runs
@@ -165,13 +250,15 @@ def fit(config, out=None, *, resume=False, quiet=False):
     models = [v.model for _, v in variants]
     grid = load_grid(cfg.grid)
     for _, v in variants:  # before the first variant's folder is made
-        require_free_parameters(ParameterSpace(v, grid.bounds, other_models=models,
-                                               nuisance=getattr(grid, "nuisance", ())), v)
+        space = ParameterSpace(v, grid.bounds, other_models=models,
+                               nuisance=getattr(grid, "nuisance", ()))
+        require_free_parameters(space, v)
+        check_sampler_settings(space, v)
     results = {}
     for name, v in variants:
         d = out / name
         partial = d.with_name(d.name + ".partial") / "chain.h5"
-        if resume and not partial.exists() and (d / "summary.json").exists():
+        if resume and not partial.exists() and is_complete(d):
             if not quiet:  # finished before the interruption: keep it
                 print(f"== hypothesis {name}: already finished", file=sys.stderr)
             continue
@@ -183,6 +270,8 @@ def fit(config, out=None, *, resume=False, quiet=False):
     if not quiet:
         print(comp.text, file=sys.stderr)
     best_name = comp.rows[0]["run"]
+    write_marker(out, sources=["compare.json", "compare.ecsv",
+                               *[f"{name}/{MARKER}" for name, _ in variants]], best=best_name)
     if best_name in results:
         best = results[best_name]
     else:
@@ -216,7 +305,7 @@ def fit_grids(cfg, out, *, resume=False, quiet=False):
     for g, lab in zip(cfg.grids, labels):
         d = out / f"grid-{lab}"
         partial = d.with_name(d.name + ".partial") / "chain.h5"
-        if resume and not partial.exists() and (d / "summary.json").exists():
+        if resume and not partial.exists() and is_complete(d):
             continue
         if not quiet:
             print(f"== grid {lab}", file=sys.stderr)
@@ -227,6 +316,9 @@ def fit_grids(cfg, out, *, resume=False, quiet=False):
     if not quiet:
         print(stack["text"], file=sys.stderr)
     best = max(stack["weights"], key=stack["weights"].get)
+    write_marker(out, sources=["stack.json", "stack.ecsv",
+                               *[f"grid-{lab}/{MARKER}" for lab in labels]],
+                 best=f"grid-{best}")
     if best in results:
         res = results[best]
     else:
@@ -276,10 +368,9 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
                 if p.is_dir() and not any(p.iterdir()):
                     p.rmdir()
         raise
-    (partial / "chain.h5").unlink(missing_ok=True)
-    if out.exists():
-        shutil.rmtree(out)
-    partial.rename(out)
+    # the marker is the run's last file; the old run (if any) stays whole until the new
+    # one is in place
+    finish(partial, out)
     return FitResult(summary=summary, posterior=dt, out=out)
 
 
@@ -287,12 +378,13 @@ def check_out_folder(out):
     """Refuse an ``--out`` that cannot become a run folder, before anything is computed:
     a path that is not a folder, one whose parent cannot be written (``OUT.partial`` is
     made beside it), or a folder that is not a teffmc run (it would be deleted)."""
+    run_files = (MARKER, "summary.json", "posterior.nc", "log.txt", "compare.json",
+                 "stack.json")
     if out.exists() and not out.is_dir():
         raise ConfigError(f"{out} exists and is not a folder: choose another --out",
                           key="--out", value=str(out))
     _check_writable(out.parent, out)
-    if out.exists() and any(out.iterdir()) and not (
-            (out / "summary.json").exists() or (out / "posterior.nc").exists()):
+    if out.exists() and any(out.iterdir()) and not any((out / f).exists() for f in run_files):
         raise ConfigError("exists and is not a teffmc run folder; it would be replaced: "
                           "choose another --out", key="--out", value=str(out))
 

@@ -3,7 +3,9 @@
 The file is the layout of :class:`emcee.backends.HDFBackend` (group ``mcmc`` with
 ``chain``, ``log_prob``, ``accepted`` and the attributes ``iteration`` and
 ``random_state_0..4``), so ``emcee.backends.HDFBackend(path, read_only=True)`` reads it.
-teffmc adds the attributes ``teffmc_seed`` and ``teffmc_names``.
+teffmc adds the attributes ``teffmc_seed``, ``teffmc_names`` and ``teffmc_sha256``, a
+checksum of the chain, log-probabilities and acceptance counts: a checkpoint that was
+edited or damaged since it was written is refused instead of silently resumed.
 
 Why not let emcee write the file step by step: it reopens the file at every step, and a
 ``kill -9`` while HDF5 is writing can leave a file that no longer opens. Here each chunk
@@ -11,6 +13,7 @@ of steps is appended to a copy that then atomically replaces the checkpoint
 (:func:`os.replace`), so a killed run always leaves the last complete chunk readable.
 """
 
+import hashlib
 import json
 import os
 import shutil
@@ -21,9 +24,20 @@ import numpy as np
 
 from teffmc.errors import ConfigError
 
-__all__ = ["read_checkpoint", "write_checkpoint", "resume_state", "memory_backend"]
+__all__ = ["read_checkpoint", "write_checkpoint", "resume_state", "memory_backend",
+           "chain_checksum"]
 
 _GROUP = "mcmc"  # emcee.backends.HDFBackend default group name
+
+
+def chain_checksum(chain, log_prob, accepted):
+    """SHA-256 of the steps (as little-endian float64) and the acceptance counts."""
+    h = hashlib.sha256()
+    for a in (chain, log_prob, accepted):
+        a = np.asarray(a)
+        h.update(repr(a.shape).encode())
+        h.update(np.ascontiguousarray(a, "<f8").tobytes())
+    return h.hexdigest()
 
 
 def read_checkpoint(path):
@@ -56,10 +70,18 @@ def read_checkpoint(path):
             if n == 0:
                 return None
             rs = [g.attrs[f"random_state_{i}"] for i in range(5)]
+            chain, log_prob, accepted = g["chain"][:n], g["log_prob"][:n], g["accepted"][...]
+            stored = g.attrs["teffmc_sha256"]
+            stored = stored.decode() if isinstance(stored, bytes) else str(stored)
+            if chain.shape[0] != n or chain_checksum(chain, log_prob, accepted) != stored:
+                raise ConfigError(
+                    "checkpoint's chain does not match its checksum (edited or damaged since "
+                    "it was written); start afresh without --resume",
+                    file=os.fspath(path), key="checkpoint", value=stored[:12])
             return {
-                "chain": g["chain"][:n],
-                "log_prob": g["log_prob"][:n],
-                "accepted": g["accepted"][...],
+                "chain": chain,
+                "log_prob": log_prob,
+                "accepted": accepted,
                 "random_state": (
                     str(rs[0]), np.asarray(rs[1], dtype=np.uint32), int(rs[2]), int(rs[3]),
                     float(rs[4]),
@@ -67,7 +89,7 @@ def read_checkpoint(path):
                 "seed": int(g.attrs["teffmc_seed"]),
                 "names": list(json.loads(g.attrs["teffmc_names"])),
             }
-    except (OSError, KeyError) as exc:
+    except (OSError, KeyError, ValueError) as exc:
         raise ConfigError(
             f"is not a readable teffmc checkpoint ({exc})", file=os.fspath(path), key="checkpoint"
         ) from exc
@@ -116,6 +138,7 @@ def write_checkpoint(path, chain, log_prob, accepted, random_state, *, n_saved, 
         g.attrs["iteration"] = n_steps
         g.attrs["teffmc_seed"] = int(seed)
         g.attrs["teffmc_names"] = json.dumps(list(names))
+        g.attrs["teffmc_sha256"] = chain_checksum(chain, log_prob, accepted)
     os.replace(tmp, path)
 
 

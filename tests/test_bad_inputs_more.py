@@ -272,7 +272,9 @@ def test_interrupt_before_the_first_checkpoint_leaves_nothing(tmp_path, capsys, 
     monkeypatch.setattr(teffmc.sample, "find_start", stop)
     tail = ('[[hypothesis]]\nname = "bare"\n[[hypothesis]]\nname = "veiled"\nveil = "grey"\n'
             if hypotheses else "")
-    rc, err = _fit(capsys, _config(tmp_path, phot, tail=tail), tmp_path / "run")
+    sampler = TINY.replace("n_walkers = 8", "n_walkers = 10")  # 2 x 5 parameters (veiled)
+    rc, err = _fit(capsys, _config(tmp_path, phot, tail=tail, sampler=sampler),
+                   tmp_path / "run")
     _one_line(rc, err, 130, "interrupted before the first checkpoint", "nothing was kept")
     _nothing_left(tmp_path / "run")
 

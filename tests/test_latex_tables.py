@@ -16,6 +16,7 @@ import pytest
 from teffmc.cli import main
 from teffmc.errors import ConfigError
 from teffmc.report.latex import csv_table, latex_escape, latex_table, round_value
+from teffmc.runfolder import write_marker
 
 NAN = float("nan")
 
@@ -191,6 +192,10 @@ def test_csv_table_columns_and_numbers():
 def test_report_format_writes_tables(tmp_path, capsys):
     (tmp_path / "summary.json").write_text(json.dumps(_summary()), encoding="utf-8")
     (tmp_path / "run.toml").write_text('name = "HD 1_2 & Co"\n', encoding="utf-8")
+    (tmp_path / "posterior.nc").write_bytes(b"")  # not read by --format
+    assert main(["report", str(tmp_path), "--format", "csv"]) == 2  # no completion marker
+    assert "no completion marker" in capsys.readouterr().err
+    write_marker(tmp_path)
     assert main(["report", str(tmp_path), "--format", "tex,csv"]) == 0
     tex = (tmp_path / "table.tex").read_text(encoding="utf-8")
     assert r"\begin{tabular}" in tex and r"of HD 1\_2 \& Co" in tex

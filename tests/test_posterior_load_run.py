@@ -8,6 +8,7 @@ import pytest
 
 from teffmc import posterior as post_mod
 from teffmc.errors import DataError
+from teffmc.runfolder import write_marker
 
 
 def _write_run(folder):
@@ -24,6 +25,7 @@ def _write_run(folder):
     folder.mkdir()
     post_mod.save(dt, folder / "posterior.nc")
     (folder / "summary.json").write_text(json.dumps({"converged": True}), encoding="utf-8")
+    write_marker(folder)  # written last by teffmc
     return result
 
 
@@ -39,5 +41,19 @@ def test_load_run_reads_posterior_and_summary(tmp_path):
 def test_load_run_names_the_missing_file(tmp_path, missing):
     _write_run(tmp_path / "run")
     (tmp_path / "run" / missing).unlink()
-    with pytest.raises(DataError, match=f"{missing}: not a finished teffmc run folder"):
+    with pytest.raises(DataError, match=f"not a finished teffmc run: {missing} is missing"):
+        post_mod.load_run(tmp_path / "run")
+
+
+def test_load_run_refuses_a_folder_without_its_marker(tmp_path):
+    _write_run(tmp_path / "run")
+    (tmp_path / "run" / "complete.json").unlink()
+    with pytest.raises(DataError, match="no completion marker complete.json"):
+        post_mod.load_run(tmp_path / "run")
+
+
+def test_load_run_refuses_a_file_changed_after_the_finish(tmp_path):
+    _write_run(tmp_path / "run")
+    (tmp_path / "run" / "summary.json").write_text(json.dumps({"converged": False}))
+    with pytest.raises(DataError, match="summary.json changed after the run finished"):
         post_mod.load_run(tmp_path / "run")

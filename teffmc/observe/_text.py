@@ -42,8 +42,12 @@ def read_text_table(path):
     meta : dict
         ``{key: value}`` from ``# key: value`` comment lines (keys lower-case).
     """
-    with open(path, encoding="utf-8") as fh:
-        lines = fh.read().splitlines()
+    try:
+        with open(path, encoding="utf-8") as fh:
+            lines = fh.read().splitlines()
+    except UnicodeDecodeError as exc:
+        raise DataError(f"is not UTF-8 text (byte 0x{exc.object[exc.start]:02x} at offset "
+                        f"{exc.start}); save the table as UTF-8", file=path) from None
     meta, rows, sep = {}, [], None
     for number, line in enumerate(lines, start=1):
         text = line.strip()

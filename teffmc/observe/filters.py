@@ -86,12 +86,15 @@ def _speclite_filter(name):
 
 
 def _user_filter(path):
-    from astropy.table import Table
+    from ._readers import read_ecsv_table
 
     try:
-        table = Table.read(path, format="ascii.ecsv")
+        table = read_ecsv_table(path)
     except FileNotFoundError:
         raise DataError("filter file not found", file=path) from None
+    if len(table) < 2:
+        raise DataError(f"filter curve has {len(table)} rows; it needs at least 2",
+                        file=path, value=len(table))
     for col in ("wavelength", "response"):
         if col not in table.colnames:
             raise DataError(

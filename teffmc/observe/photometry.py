@@ -91,6 +91,8 @@ def make_photometry(bands, mag, err, system, floor=None, *, source=None):
     """Validate and build :class:`Photometry` (errors name file, column and value)."""
     bands = tuple(str(b) for b in np.atleast_1d(bands))
     n = len(bands)
+    if n == 0:
+        raise DataError("has no rows (no band to fit)", file=source, column="band", value=0)
     system = (system,) * n if isinstance(system, str) else tuple(system)
     floor = np.zeros(n) if floor is None else floor
     cols = {"mag": mag, "err": err, "system": system, "floor": floor}
@@ -104,6 +106,15 @@ def make_photometry(bands, mag, err, system, floor=None, *, source=None):
             )
     for band in bands:
         get_filter(band, file=source)
+    seen = {}
+    for i, band in enumerate(bands):  # a band twice would be fitted twice (or disagree)
+        if band in seen:
+            j = seen[band]
+            raise DataError(
+                f"row {i + 1}: band {band} is also in row {j + 1} (values {mag[j]!r} and "
+                f"{mag[i]!r}); give each band once (combine repeated measurements first)",
+                file=source, column="band", value=band)
+        seen[band] = i
     system = tuple(str(s).strip().lower() for s in system)
     for s in system:
         if s not in ("vega", "ab"):
@@ -160,9 +171,9 @@ def _flux_to_mag(flux, err, unit, band, system, path, row):
 def _read_columns(path):
     """{name: values}, {name: unit} from an ECSV or text table."""
     if str(path).lower().endswith(".ecsv"):
-        from astropy.table import Table
+        from ._readers import read_ecsv_table
 
-        table = Table.read(path, format="ascii.ecsv")
+        table = read_ecsv_table(path)
         values = {}
         for name in table.colnames:
             col = table[name]
@@ -196,6 +207,8 @@ def read_photometry(path):
         values, units = _read_columns(path)
     except FileNotFoundError:
         raise DataError("file not found", file=path) from None
+    except OSError as exc:  # a folder, no permission, ...
+        raise DataError(f"cannot read file ({exc.strerror or exc})", file=path) from None
     for need in ("band", "err", "system"):
         if need not in values:
             raise DataError(

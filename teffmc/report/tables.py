@@ -7,7 +7,7 @@ import numpy as np
 
 from ..parameters import UNITS
 
-__all__ = ["write_summary", "write_json", "strict_json"]
+__all__ = ["write_summary", "write_summary_ecsv", "write_json", "strict_json"]
 
 COLUMNS = ("median", "p16", "p84", "mean", "sd", "r_hat", "ess_bulk", "ess_tail")
 
@@ -44,9 +44,14 @@ def write_summary(summary, json_path, ecsv_path):
     Non-finite numbers become ``null`` in summary.json (read back as None) and NaN in
     summary.ecsv; a summary read back from summary.json can be written again.
     """
+    write_json(summary, json_path)
+    write_summary_ecsv(summary, ecsv_path)
+
+
+def write_summary_ecsv(summary, ecsv_path):
+    """The ECSV table of :func:`write_summary` alone (``teffmc report`` redraws it)."""
     from astropy.table import Table
 
-    write_json(summary, json_path)
     rows = []
     for group in ("parameters", "derived"):
         for name, stats in summary.get(group, {}).items():
