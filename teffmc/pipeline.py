@@ -72,6 +72,28 @@ class LogCoordinates:
                        log_prob=result.log_prob - self.jacobian(result.chain))
 
 
+def hole_cautions(space, grid):
+    """Cautions for the parts of the prior that holes in the grid remove from the model.
+
+    The sampler never enters a cell touching a missing model (interpolation there would
+    cross the hole), so the posterior is silently truncated there: say where."""
+    if not hasattr(grid, "excluded_regions"):
+        return []
+    box = {}
+    for ax in ("teff", "logg", "mh"):
+        ps = [space.prior_of(ax, lab) for lab in space.labels]
+        box[ax] = (min(p.support[0] for p in ps), max(p.support[1] for p in ps))
+    units = {"teff": " K", "logg": "", "mh": ""}
+    out = []
+    for node, region in grid.excluded_regions(box):
+        where = ", ".join(f"{ax} {lo:g}-{hi:g}{units[ax]}" if lo != hi else f"{ax} {lo:g}"
+                          for ax, (lo, hi) in region.items())
+        out.append(f"the grid has no model at teff={node[0]:g}, logg={node[1]:g}, "
+                   f"mh={node[2]:g}: the region {where} inside the prior is excluded "
+                   "from the fit (no interpolation across a hole)")
+    return out
+
+
 def sample_posterior(prep, checkpoint, *, resume, quiet, log):
     """Optimised start, then emcee until converged or out of steps (in log coordinates
     for log-uniform priors, see :class:`LogCoordinates`)."""
@@ -280,6 +302,7 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
         "goodness_of_fit": gof,
         "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
         + gof_cautions(gof)
+        + hole_cautions(space, prep.grid)
         + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
     }
     if cfg.sampler.evidence:

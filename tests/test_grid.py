@@ -80,3 +80,38 @@ def test_corrupt_file_is_detected(tmp_path, rng):
         f["log_flux"][0, 0, 0, 0] += 1.0
     with pytest.raises(GridError, match="checksum"):
         Grid.read(tmp_path / "g.h5")
+
+
+def test_excluded_regions_name_what_a_hole_removes_from_a_prior(rng):
+    # a hole at (3500, 0, -0.5) removes the cells around it: teff 3000-4000, logg 0-1,
+    # mh -0.5-0 (open at the neighbours' faces, where the hole has weight 0)
+    g = _toy_grid(rng, holes=[(1, 0, 0)])
+    full = {"teff": (3000.0, 4000.0), "logg": (0.0, 1.0), "mh": (-0.5, 0.0)}
+    [(node, region)] = g.excluded_regions(full)
+    assert node == (3500.0, 0.0, -0.5)
+    assert region == {"teff": (3000.0, 4000.0), "logg": (0.0, 1.0), "mh": (-0.5, 0.0)}
+    # a prior fixed on the far face (logg = 1) never gives the hole weight
+    assert g.excluded_regions({**full, "logg": (1.0, 1.0)}) == []
+    assert g.check_inside(3500.0, 1.0, -0.25)
+    # a prior box that reaches in only part way: the region is clipped to it
+    [(_, region)] = g.excluded_regions({**full, "teff": (3800.0, 4000.0)})
+    assert region["teff"] == (3800.0, 4000.0)
+    assert not g.check_inside(3900.0, 0.5, -0.25)
+    assert _toy_grid(rng).excluded_regions(full) == []
+
+
+def test_a_fit_whose_prior_crosses_a_hole_says_so(rng, tmp_path):
+    from teffmc.config import load_config
+    from teffmc.parameters import ParameterSpace
+    from teffmc.pipeline import hole_cautions
+
+    g = _toy_grid(rng, holes=[(1, 0, 0)])
+    g.write(tmp_path / "toy.h5")
+    (tmp_path / "p.ecsv").write_text("")
+    (tmp_path / "c.toml").write_text(
+        'grid = "toy.h5"\n[[epoch]]\nphotometry = "p.ecsv"\n[priors]\n'
+        'teff = { dist = "uniform", low = 3000, high = 4000 }\n'
+        'logg = { fixed = 0.5 }\nmh = { fixed = -0.2 }\n')
+    cfg = load_config(tmp_path / "c.toml")
+    notes = hole_cautions(ParameterSpace(cfg, g.bounds), g)
+    assert len(notes) == 1 and "teff=3500" in notes[0] and "teff 3000-4000 K" in notes[0]

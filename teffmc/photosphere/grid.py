@@ -121,6 +121,35 @@ class Grid:
         """List of ``(teff, logg, mh)`` nodes the grid does not have."""
         return [self.node_params(tuple(i)) for i in np.argwhere(~self._present)]
 
+    def excluded_regions(self, box):
+        """Parts of a parameter box that holes remove from the model.
+
+        A hole removes every interpolation cell that has it as a corner (interpolation
+        never crosses a hole). ``box``: ``{axis: (low, high)}`` for the three axes (a
+        prior's support). Returns, for each hole whose cells overlap the box, a
+        ``(node, region)`` pair: the missing node and ``{axis: (low, high)}`` of the
+        excluded region clipped to the box.
+        """
+        out = []
+        for idx in np.argwhere(~self._present):
+            region = {}
+            for ax, i in zip(AXES, idx):
+                v, (blo, bhi) = getattr(self, ax), box[ax]
+                if v.size == 1:
+                    region[ax] = (float(v[0]), float(v[0]))
+                    continue
+                # the hole has weight on the open interval between its neighbours (closed
+                # at the grid's edge): a point on a neighbour's face gives it weight 0
+                lo, hi = v[max(i - 1, 0)], v[min(i + 1, v.size - 1)]
+                lo_in, hi_in = i == 0, i == v.size - 1
+                a, b = max(lo, blo), min(hi, bhi)
+                if not (a < b or (a == b and (a > lo or lo_in) and (a < hi or hi_in))):
+                    break
+                region[ax] = (float(a), float(b))
+            else:
+                out.append((self.node_params(tuple(idx)), region))
+        return out
+
     @property
     def checksum(self):
         return grid_checksum(self.teff, self.logg, self.mh, self.wave, self.log_flux)
