@@ -27,6 +27,8 @@ CHUNK = 512
 MAX_STORED_DRAWS = 8000   # posterior draws kept in posterior.nc (all walkers together)
 MAX_GOF_DRAWS = 200       # draws for the goodness-of-fit numbers
 MAX_LOO_DRAWS = 2000      # draws with pointwise log-likelihood (PSIS-LOO works well here)
+MIN_LOO_DRAWS = 200       # ... and never fewer (very long spectra)
+MAX_POINTWISE_VALUES = 50_000_000  # draws x points kept for LOO (200 MB as float32)
 CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synthesis; "
                 "for publication-grade temperatures import a validated model grid.")
 
@@ -130,8 +132,11 @@ class VBand:
         return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
 
 
-def _chunked(fn, flat):
+def _chunked(fn, flat, dtype=None):
     parts = [fn(flat[i:i + CHUNK]) for i in range(0, flat.shape[0], CHUNK)]
+    if dtype is not None:  # each part converted as it comes (peak memory)
+        parts = [{k: v.astype(dtype) for k, v in p.items()} if isinstance(p, dict)
+                 else p.astype(dtype) for p in parts]
     if isinstance(parts[0], dict):
         return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
     return np.concatenate(parts)
@@ -234,6 +239,14 @@ def _predict(prep, x):
     return out
 
 
+def loo_draws(prep):
+    """How many draws get pointwise log-likelihoods: MAX_LOO_DRAWS, fewer for very long
+    spectra so that the n_draws x n_points array stays within MAX_POINTWISE_VALUES (at
+    least MIN_LOO_DRAWS; PSIS's Pareto k says when that is too few)."""
+    n_points = sum(ch.n_points for chans in prep.channels.values() for ch in chans)
+    return int(min(MAX_LOO_DRAWS, max(MIN_LOO_DRAWS, MAX_POINTWISE_VALUES // n_points)))
+
+
 def finish_run(prep, result, folder, *, log, hypothesis=None):
     """Derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
     cfg, space = prep.config, prep.space
@@ -249,10 +262,10 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
                for k, v in derived_quantities(prep, flat, rng).items()}
     # pointwise log-likelihood (for PSIS-LOO) on at most MAX_LOO_DRAWS draws: it is
     # n_draws x n_pixels, by far the largest part of posterior.nc
-    every = max(1, math.ceil(n_draws * n_walkers / MAX_LOO_DRAWS))
+    every = max(1, math.ceil(n_draws * n_walkers / loo_draws(prep)))
     loo_chain = result.chain[::every]
-    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim))
-    pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1).astype(np.float32)
+    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim), np.float32)
+    pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1)
                  for k, v in pointwise.items()}
     sub = result.chain[-min(n_draws, 4):]
     predictive = {k: v.reshape(sub.shape[0], n_walkers, -1)
