@@ -376,12 +376,12 @@ class _Progress:
         self.fitted, self.t0 = 0, time.perf_counter()
         self.file = open(log_path, "a", encoding="utf-8")  # noqa: SIM115 (closed in close())
 
-    def line(self, text, extra=None):
+    def line(self, text, extra=None, echo=True):
         self.file.write(text + "\n")
         if extra:
             self.file.write(extra)
         self.file.flush()
-        if not self.quiet:
+        if echo and not self.quiet:
             print(text, file=sys.stderr, flush=True)
 
     def star(self, name, what, *, fitted, extra=None):
@@ -499,7 +499,7 @@ def _fit_many_locked(plan, out, workers, scheduler, redo, quiet):
         if engine.records:
             progress.line(engine.cache_line())
     except ClusterError as exc:
-        progress.line(f"stopped: {' '.join(str(exc).split())}")
+        progress.line(f"stopped: {' '.join(str(exc).split())}", echo=False)  # the CLI says it
         raise
     except (KeyboardInterrupt, SystemExit):
         progress.line("interrupted; re-run the same command to resume")
@@ -549,7 +549,7 @@ class _Engine:
                                   "distributed.scheduler.allowed-failures": ALLOWED_FAILURES}):
                 self.cluster = LocalCluster(
                     n_workers=self.workers, threads_per_worker=1, processes=True,
-                    dashboard_address=":0" if _has_bokeh() else None,
+                    dashboard_address=":0",  # a free port (the page needs bokeh)
                     silence_logs=logging.ERROR, env=env)
                 self.client = Client(self.cluster, set_as_default=False)
             if _has_bokeh():

@@ -80,3 +80,27 @@ def test_corrupt_file_is_detected(tmp_path, rng):
         f["log_flux"][0, 0, 0, 0] += 1.0
     with pytest.raises(GridError, match="checksum"):
         Grid.read(tmp_path / "g.h5")
+
+
+def test_grid_file_is_read_once_per_process_until_replaced(tmp_path, rng):
+    # common practice, no source: a batch worker reads the grid once for all its stars,
+    # keyed by path and modification time, so a replaced file is read again
+    import os
+
+    from teffmc.photosphere import grid_cache_info
+
+    path = tmp_path / "g.h5"
+    _toy_grid(rng).write(path)
+    before = grid_cache_info()
+    a = load_grid(path)
+    b = load_grid(tmp_path / "." / "g.h5")
+    assert a is b
+    after = grid_cache_info()
+    assert (after.hits, after.misses) == (before.hits + 1, before.misses + 1)
+    new = _toy_grid(rng)
+    new.write(tmp_path / "new.h5")
+    os.replace(tmp_path / "new.h5", path)
+    t = os.stat(path).st_mtime_ns + 10**9
+    os.utime(path, ns=(t, t))  # a replaced file has a new modification time
+    c = load_grid(path)
+    assert c is not a and c.checksum == new.checksum != a.checksum
