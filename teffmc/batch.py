@@ -531,7 +531,7 @@ class _Engine:
         self.dashboard = None
         self.records = {}  # star -> the task's engine dict (worker, start, stop, ...)
         self.t_submit = None
-        self._log_level = None
+        self._log_levels = {}
 
     # -- start and stop
     def start(self):
@@ -540,6 +540,9 @@ class _Engine:
         import dask
         from distributed import Client, LocalCluster
 
+        # the batch says what went wrong with a star or the cluster, in one line; Dask's
+        # client would add its tracebacks (a lost scheduler, a worker that died)
+        self._log_levels = _quiet_dask()
         if self.address is None:
             env = {k: "1" for k in BLAS_ENV}
             env[_PARENT_ENV] = str(os.getpid())
@@ -552,14 +555,12 @@ class _Engine:
                     dashboard_address=":0",  # a free port (the page needs bokeh)
                     silence_logs=logging.ERROR, env=env)
                 self.client = Client(self.cluster, set_as_default=False)
+            _quiet_dask()  # silence_logs set "distributed" to ERROR, for the workers
             if _has_bokeh():
                 self.dashboard = self.client.dashboard_link
         else:
             from distributed import Client
 
-            log = logging.getLogger("distributed")
-            self._log_level = log.level
-            log.setLevel(logging.ERROR)  # the batch says what went wrong, in one line
             try:
                 self.client = Client(self.address, timeout=CONNECT_TIMEOUT,
                                      set_as_default=False)
@@ -585,10 +586,6 @@ class _Engine:
         import logging
 
         if self.client is not None:
-            log = logging.getLogger("distributed")
-            if self._log_level is None:
-                self._log_level = log.level
-            log.setLevel(logging.CRITICAL)  # closing after a lost scheduler logs tracebacks
             try:
                 self.client.close(timeout=10)
             except Exception:  # closing a broken connection
@@ -600,8 +597,9 @@ class _Engine:
             except Exception:  # its workers are ended anyway
                 pass
             self.cluster = None
-        if self._log_level is not None:
-            logging.getLogger("distributed").setLevel(self._log_level)
+        for name, level in self._log_levels.items():
+            logging.getLogger(name).setLevel(level)
+        self._log_levels = {}
 
     # -- the stars
     def run(self, plan, todo, rows, out, redo, progress):
@@ -718,6 +716,22 @@ class _Engine:
             _write_atomic(path, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))
         except OSError:  # a report of the engine is not worth failing a batch for
             pass
+
+
+def _quiet_dask():
+    """Only CRITICAL messages from Dask's loggers in this process (Dask sets levels on
+    some of its loggers, e.g. distributed.client); returns their levels before."""
+    import logging
+
+    names = ["distributed"] + [n for n in logging.root.manager.loggerDict
+                               if n.startswith("distributed.")]
+    old = {}
+    for n in names:
+        log = logging.getLogger(n)
+        if n == "distributed" or log.level != logging.NOTSET:
+            old[n] = log.level
+            log.setLevel(logging.CRITICAL)
+    return old
 
 
 def _brief(exc):
