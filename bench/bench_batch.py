@@ -19,7 +19,10 @@ Each worker count fits all stars from scratch through :func:`teffmc.fit_many` (a
 embedded ``LocalCluster``, or the cluster at ``--scheduler``). Printed per worker count:
 the batch's wall time (cluster start included), per star, the mean fit time inside the
 workers, stars per hour, the fraction converged, the peak memory (max RSS) per worker; then
-the parallel efficiency T1 / (n T_n) and the engine's overhead per star, read from
+the parallel efficiency T1 / (n T_n), the workers' utilisation (sum of fit times / (workers
+x wall): below 1 only by the engine's idle time and cluster start, whatever the machine's
+load, while T1 / (n T_n) also drops when other programs take the cores), and the engine's
+overhead per star, read from
 ``batch-engine.json``: the idle time of a worker between the end of one star and the start
 of the next (Dask's scheduling and result transfer) plus the time inside the task outside
 the fit, as a fraction of the mean fit time.
@@ -92,7 +95,8 @@ def engine_numbers(out):
                        if s["fit"] is not None])
     gaps = np.concatenate([w["gaps_s"] for w in rep["workers"].values()] or [[]])
     first = min(s["start"] for s in stars.values())
-    return {"mean_fit": float(fits.mean()),
+    return {"mean_fit": float(fits.mean()), "sum_fit": float(fits.sum()),
+            "n_workers": len(rep["workers"]),
             "gap": float(gaps.mean()) if gaps.size else float("nan"),
             "inside": float(inside.mean()),
             "startup": first - rep["submitted"],
@@ -143,6 +147,8 @@ def main():
               f"{1000 * e['inside']:.1f} ms; fraction converged {conv / len(t):.3f}; "
               f"machine load average {load[0]:.1f} at start, {load[1]:.1f} at end "
               f"({os.cpu_count()} cores)")
+        print(f"{'':>9} workers busy fitting {e['sum_fit'] / (e['n_workers'] * wall):.3f} of "
+              f"the batch's wall time (sum of fit times / (workers x wall))")
         for worker, caches in e["caches"].items():
             text = ", ".join(f"{k} {h}/{u}" for k, (h, u) in caches.items())
             print(f"{'':>9} {worker}: peak {e['peak_mb'][worker]:.0f} MB; caches "

@@ -486,3 +486,26 @@ def test_a_tenth_of_configs_broken(stars, first, tmp_path):
     uses = sum(w["caches"]["extinction"][1] for w in engine["workers"].values())
     assert uses - hits <= 3 * n_workers < hits, engine["workers"]  # 3 tables per star
     assert "worker caches" in (out / "batch.log").read_text().splitlines()[-1]
+
+
+def test_sigterm_mid_star_keeps_the_checkpoint_and_rerun_resumes(slow, tmp_path):
+    cfg, ref = slow
+    out = tmp_path / "term"
+    cmd = _batch_cmd([cfg], out, "--workers", "1")
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        _wait_for_checkpoint(out, "slow", proc)
+        proc.send_signal(signal.SIGTERM)  # a job scheduler's stop
+        _, err = proc.communicate(timeout=120)
+    finally:
+        if proc.poll() is None:
+            _kill_tree(proc)
+    assert proc.returncode == 130, err
+    assert err.strip().splitlines()[-1].startswith("teffmc: interrupted") and \
+        "Traceback" not in err, err
+    assert (out / "slow.partial" / "chain.h5").is_file()
+    assert list(Table.read(out / "batch.ecsv", format="ascii.ecsv")["status"]) == ["pending"]
+    res = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0, res.stderr
+    _same_row(Table.read(out / "batch.ecsv", format="ascii.ecsv"), "slow", ref)
+    assert "resuming" in (out / "slow" / "log.txt").read_text()
