@@ -514,10 +514,20 @@ def _fit_many_locked(plan, out, workers, scheduler, redo, quiet):
     return _table(rows)
 
 
-def _has_bokeh():
-    import importlib.util
+def _dashboard(client):
+    """The address of the Dask dashboard if it serves its pages (they need bokeh), else
+    None."""
+    import urllib.request
 
-    return importlib.util.find_spec("bokeh") is not None
+    try:
+        if "dashboard" not in client.scheduler_info().get("services", {}):
+            return None
+        link = client.dashboard_link
+        with urllib.request.urlopen(link, timeout=2) as r:  # noqa: S310 (the scheduler's)
+            page = r.read(4096).decode("utf-8", "replace")
+            return link if r.status == 200 and "needs bokeh" not in page else None
+    except Exception:  # a dashboard link is a courtesy
+        return None
 
 
 class _Engine:
@@ -552,12 +562,10 @@ class _Engine:
                                   "distributed.scheduler.allowed-failures": ALLOWED_FAILURES}):
                 self.cluster = LocalCluster(
                     n_workers=self.workers, threads_per_worker=1, processes=True,
-                    dashboard_address=":0",  # a free port (the page needs bokeh)
+                    dashboard_address=":0",  # a free port
                     silence_logs=logging.ERROR, env=env)
                 self.client = Client(self.cluster, set_as_default=False)
             _quiet_dask()  # silence_logs set "distributed" to ERROR, for the workers
-            if _has_bokeh():
-                self.dashboard = self.client.dashboard_link
         else:
             from distributed import Client
 
@@ -567,11 +575,7 @@ class _Engine:
             except (OSError, TimeoutError, ValueError, TypeError) as exc:
                 raise ClusterError(f"cannot reach the Dask scheduler at {self.address} "
                                    f"({_brief(exc)})") from None
-            try:
-                if "dashboard" in self.client.scheduler_info().get("services", {}):
-                    self.dashboard = self.client.dashboard_link
-            except Exception:  # a dashboard link is a courtesy
-                self.dashboard = None
+        self.dashboard = _dashboard(self.client)
 
     def describe(self):
         if self.address is None:
