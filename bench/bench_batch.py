@@ -21,7 +21,9 @@ the batch's wall time (cluster start included), per star, the mean fit time insi
 workers, stars per hour, the fraction converged, the peak memory (max RSS) per worker; then
 the parallel efficiency T1 / (n T_n), the workers' utilisation (sum of fit times / (workers
 x wall): below 1 only by the engine's idle time and cluster start, whatever the machine's
-load, while T1 / (n T_n) also drops when other programs take the cores), and the engine's
+load, while T1 / (n T_n) also drops when other programs take the cores) with the CPU time
+per star (the efficiency expected on free cores is U_n / U_1 x CPU_1 / CPU_n), and the
+engine's
 overhead per star, read from
 ``batch-engine.json``: the idle time of a worker between the end of one star and the start
 of the next (Dask's scheduling and result transfer) plus the time inside the task outside
@@ -95,7 +97,9 @@ def engine_numbers(out):
                        if s["fit"] is not None])
     gaps = np.concatenate([w["gaps_s"] for w in rep["workers"].values()] or [[]])
     first = min(s["start"] for s in stars.values())
+    cpu = np.array([s["cpu"] for s in stars.values() if s.get("cpu") is not None])
     return {"mean_fit": float(fits.mean()), "sum_fit": float(fits.sum()),
+            "cpu": float(cpu.mean()),
             "n_workers": len(rep["workers"]),
             "gap": float(gaps.mean()) if gaps.size else float("nan"),
             "inside": float(inside.mean()),
@@ -124,7 +128,7 @@ def main():
     print(f"{'workers':>9} {'batch [s]':>10} {'per star [s]':>13} {'one fit [s]':>12} "
           f"{'stars/hour':>11} {'converged':>10} {'overhead':>9} {'peak MB/worker':>15}")
     runs = [(None, args.scheduler)] if args.scheduler else [(w, None) for w in args.workers]
-    walls = {}
+    walls, cpus = {}, {}
     for w, sched in runs:
         out = root / f"runs_w{w or 'cluster'}"
         shutil.rmtree(out, ignore_errors=True)
@@ -147,8 +151,10 @@ def main():
               f"{1000 * e['inside']:.1f} ms; fraction converged {conv / len(t):.3f}; "
               f"machine load average {load[0]:.1f} at start, {load[1]:.1f} at end "
               f"({os.cpu_count()} cores)")
-        print(f"{'':>9} workers busy fitting {e['sum_fit'] / (e['n_workers'] * wall):.3f} of "
-              f"the batch's wall time (sum of fit times / (workers x wall))")
+        util = e["sum_fit"] / (e["n_workers"] * wall)
+        cpus[w] = (util, e["cpu"])
+        print(f"{'':>9} workers busy fitting {util:.3f} of the batch's wall time (sum of fit "
+              f"times / (workers x wall)); CPU time per star {e['cpu']:.2f} s")
         for worker, caches in e["caches"].items():
             text = ", ".join(f"{k} {h}/{u}" for k, (h, u) in caches.items())
             print(f"{'':>9} {worker}: peak {e['peak_mb'][worker]:.0f} MB; caches "
@@ -159,6 +165,11 @@ def main():
         for w, wall in walls.items():
             if w and w > 1:
                 print(f"parallel efficiency T1 / ({w} T{w}) = {walls[1] / (w * wall):.3f}")
+                # on free cores a star costs the same CPU time in every worker: the wall
+                # time then scales with CPU time per star / utilisation
+                est = (cpus[w][0] / cpus[1][0]) * (cpus[1][1] / cpus[w][1])
+                print(f"  expected on {w} free cores (utilisation and CPU time per star "
+                      f"as measured): {est:.3f}")
     if not args.out:
         shutil.rmtree(root)
 

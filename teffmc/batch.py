@@ -192,7 +192,7 @@ def _fit_star(config, out, redo):
     from .interrupt import STOP
 
     _worker_setup()
-    start = time.time()
+    start, cpu0 = time.time(), time.process_time()
     t0 = time.perf_counter()
     out = Path(out)
     STOP["requested"] = False  # a stop request of an earlier batch is not for this star
@@ -219,7 +219,8 @@ def _fit_star(config, out, redo):
         tb = None if isinstance(exc, TeffmcError) else traceback.format_exc()
         res = {"ok": False, "wall": wall(), "reason": _one_line(exc), "traceback": tb}
     res["engine"] = {"worker": f"{socket.gethostname()}:{os.getpid()}", "start": start,
-                     "stop": time.time(), "peak_rss_mb": round(_peak_rss_mb(), 1),
+                     "stop": time.time(), "cpu": round(time.process_time() - cpu0, 3),
+                     "peak_rss_mb": round(_peak_rss_mb(), 1),
                      "caches": _cache_counters()}
     return res
 
@@ -706,11 +707,12 @@ class _Engine:
             w["busy_s"] = round(w["busy_s"], 3)
         return {"engine": "LocalCluster" if self.address is None else self.address,
                 "submitted": self.t_submit, "workers": workers,
-                "stars": {s: {k: r[k] for k in ("worker", "start", "stop", "fit", "ok",
-                                                "peak_rss_mb")}
+                "stars": {s: {k: r.get(k) for k in ("worker", "start", "stop", "fit",
+                                                    "cpu", "ok", "peak_rss_mb")}
                           for s, r in self.records.items()},
                 "note": "start/stop: Unix times at which the task began and ended on its "
-                        "worker; fit: the fit's own wall time [s]; gaps_s: idle time of a "
+                        "worker; fit: the fit's own wall time [s]; cpu: the worker "
+                        "process's CPU time during the task [s]; gaps_s: idle time of a "
                         "worker between the end of one star and the start of the next "
                         "(Dask's scheduling and data transfer)."}
 
