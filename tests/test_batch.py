@@ -457,18 +457,36 @@ def test_scheduler_killed_then_rerun_resumes(stars, slow, tmp_path):
     assert "resuming" in (out / "slow" / "log.txt").read_text()
 
 
-def test_a_tenth_of_configs_broken(stars, first, tmp_path):
-    _, out1 = first
-    alpha = Table.read(out1 / "batch.ecsv", format="ascii.ecsv")[:1]
+def _blackbody_grid_file(path):
+    """Planck surface fluxes tabulated as a grid file (Teff 3000-6000 K every 100 K,
+    R ~ 2000 from 0.3 to 3 micron), so that a batch reads a grid file."""
+    from teffmc.photosphere import Grid, planck_surface_flux
+
+    teff = np.arange(3000.0, 6001.0, 100.0)
+    wave = np.geomspace(3000.0, 30000.0, 4600)
+    lf = np.log10(planck_surface_flux(wave, teff)).astype(np.float32)
+    lf = np.broadcast_to(lf[:, None, None, :], (teff.size, 2, 2, wave.size))
+    Grid(teff, np.array([0.0, 1.0]), np.array([-0.5, 0.0]), wave, lf,
+         provenance={"source": "Planck's law, tabulated for a test"}, name="bb").write(path)
+    return path
+
+
+def test_a_tenth_of_configs_broken(tmp_path):
     survey = tmp_path / "survey"
     survey.mkdir()
+    grid_file = _blackbody_grid_file(survey / "bb.h5")
+    truth = {"teff": 4000.0, "logg": 0.0, "mh": 0.0, "a_v": 0.5, "r_v": 3.1, "theta": 2.0}
+    simulate_epoch(survey, "data", load_grid(grid_file), ModelSpec(), truth,
+                   resolution=100.0, wave_range=(4500.0, 9000.0),
+                   rng=np.random.default_rng(1))
     configs = []
     for k in range(1, 11):
         c = survey / f"s{k:02d}.toml"
         if k == 7:  # broken: not TOML
             c.write_text('grid = "blackbody"\n[priors\n')
-        else:  # the data of alpha, so every row must be alpha's numbers
-            c.write_text(_config(c.stem, data=str(stars / "alpha"), max_steps=3000))
+        else:  # the same data and seed: every row must hold the same numbers
+            c.write_text(_config(c.stem, data="data", max_steps=3000)
+                         .replace('grid = "blackbody"', f'grid = "{grid_file}"'))
         configs.append(c)
     out = tmp_path / "out"
     t = teffmc.fit_many(configs, out, workers=2)
@@ -477,14 +495,22 @@ def test_a_tenth_of_configs_broken(stars, first, tmp_path):
     assert "s07.toml" in reason and "\n" not in reason and "internal error" not in reason
     assert any(ln.startswith("[") and "s07 failed" in ln and reason in ln
                for ln in (out / "batch.log").read_text().splitlines())
-    for star in t["star"][t["status"] == "ok"]:
-        _same_row(t, star, alpha)
-    # the work that is the same for every star was done once per worker
+    ok = t[t["status"] == "ok"]
+    for star in ok["star"][1:]:
+        _same_row(ok, star, ok[:1])
+    assert abs(ok["teff_median"][0] - 4000.0) < 100.0
+    # the work that is the same for every star was done once per worker: the grid file
+    # read once, the extinction tables (3 per star: spectrum, bands) computed once
     engine = json.loads((out / "batch-engine.json").read_text())
-    n_workers = len(engine["workers"])
-    hits = sum(w["caches"]["extinction"][0] for w in engine["workers"].values())
-    uses = sum(w["caches"]["extinction"][1] for w in engine["workers"].values())
-    assert uses - hits <= 3 * n_workers < hits, engine["workers"]  # 3 tables per star
+    workers = engine["workers"].values()
+    assert sorted(sum((w["stars"] for w in workers), [])) == list(t["star"])
+    for w in workers:
+        n = len([s for s in w["stars"] if s != "s07"])  # s07 stopped at its config
+        if n == 0:
+            continue
+        assert w["caches"]["grid"] == [n - 1, n], w
+        hits, uses = w["caches"]["extinction"]
+        assert uses - hits == 3 and uses == 3 * n, w
     assert "worker caches" in (out / "batch.log").read_text().splitlines()[-1]
 
 
