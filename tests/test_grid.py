@@ -115,3 +115,27 @@ def test_a_fit_whose_prior_crosses_a_hole_says_so(rng, tmp_path):
     cfg = load_config(tmp_path / "c.toml")
     notes = hole_cautions(ParameterSpace(cfg, g.bounds), g)
     assert len(notes) == 1 and "teff=3500" in notes[0] and "teff 3000-4000 K" in notes[0]
+
+
+def test_grid_file_is_read_once_per_process_until_replaced(tmp_path, rng):
+    # common practice, no source: a batch worker reads the grid once for all its stars,
+    # keyed by path and modification time, so a replaced file is read again
+    import os
+
+    from teffmc.photosphere import grid_cache_info
+
+    path = tmp_path / "g.h5"
+    _toy_grid(rng).write(path)
+    before = grid_cache_info()
+    a = load_grid(path)
+    b = load_grid(tmp_path / "." / "g.h5")
+    assert a is b
+    after = grid_cache_info()
+    assert (after.hits, after.misses) == (before.hits + 1, before.misses + 1)
+    new = _toy_grid(rng)
+    new.write(tmp_path / "new.h5")
+    os.replace(tmp_path / "new.h5", path)
+    t = os.stat(path).st_mtime_ns + 10**9
+    os.utime(path, ns=(t, t))  # a replaced file has a new modification time
+    c = load_grid(path)
+    assert c is not a and c.checksum == new.checksum != a.checksum
