@@ -178,8 +178,8 @@ def _rhat_check(chain, tau, n, names, rhat_max, text):
 
 
 def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000,
-                min_steps=1000, check_every=500, tau_factor=TAU_FACTOR, tau_rtol=TAU_RTOL, moves=None,
-                checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3,
+                min_steps=1000, check_every=500, tau_factor=TAU_FACTOR, tau_rtol=TAU_RTOL,
+                moves=None, checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3,
                 rhat_max=RHAT_MAX):
     """Sample a posterior with emcee until the autocorrelation stop rule is met.
 

@@ -232,7 +232,7 @@ def _photometry(pan, ax, rax, models):
 
 def _band_names(ax, um, d, bands):
     """Band names under the points, shortened ("bessell-V" -> "V")."""
-    for k, (xi, yi, b) in enumerate(sorted(zip(um, d, bands))):
+    for xi, yi, b in sorted(zip(um, d, bands)):
         name = str(b).split("-")[-1]
         plain_text(ax.annotate(name, (xi, yi), textcoords="offset points",
                                xytext=(0, -11), ha="center",

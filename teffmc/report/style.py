@@ -10,7 +10,8 @@ after drawing (the figure tests call it on every figure).
 
 import numpy as np
 
-__all__ = ["COLUMN", "PAGE", "PALETTE", "figure", "save", "text_overlaps", "unit_label",
+__all__ = ["COLUMN", "PAGE", "PALETTE", "figure", "save", "save_many", "text_overlaps",
+           "unit_label",
            "CAUTION", "plain_text", "png_meta"]
 
 COLUMN, PAGE = 3.5, 7.1   # [inch]
@@ -87,6 +88,23 @@ def save(fig, stem, formats, *, converged=True):
         out.append(path)
     plt.close(fig)
     return out
+
+
+def save_many(fig, stem, formats, *, converged=True, keep_png=None, key=None):
+    """:func:`save` that also keeps the PNG bytes in ``keep_png[key]`` (for the HTML
+    page), from the written file or, without "png" in ``formats``, drawn in memory."""
+    import io
+
+    if keep_png is not None and "png" not in formats:
+        plt = _plt()
+        buf = io.BytesIO()
+        with plt.rc_context(rc()):
+            fig.savefig(buf, format="png", metadata=png_meta(converged))
+        keep_png[key] = buf.getvalue()
+    paths = save(fig, stem, formats, converged=converged)
+    if keep_png is not None and "png" in formats:
+        keep_png[key] = stem.with_name(f"{stem.name}.png").read_bytes()
+    return paths
 
 
 def _texts(fig):
