@@ -364,6 +364,8 @@ def _fit_many_locked(plan, out, workers, redo, quiet):
                               fitted=False)
         _write_atomic(_table(rows), table_path)
         _run_pool(plan, todo, rows, out, workers, redo, progress, table_path)
+        from .report.survey import write_survey_html  # survey.html beside batch.ecsv
+        write_survey_html(out)
         counts = {s: sum(r["status"] == s for r in rows) for s in STATUSES}
         progress.line(f"done in {_duration(time.perf_counter() - progress.t0)}: "
                       f"{counts['ok']} ok, {counts['not_converged']} not converged, "

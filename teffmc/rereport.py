@@ -1,27 +1,13 @@
 """``teffmc report RUN_DIR [--format LIST]``: the report files of a finished run, drawn
 again from its files by the one output path (:mod:`teffmc.report.output`)."""
 
-import json
 from pathlib import Path
 
+from .report.figures import panels_from_posterior
 from .report.output import FORMATS, parse_formats, write_report
 from .runfolder import run_lock
 
 __all__ = ["panels_from_posterior", "redraw", "parse_formats", "FORMATS"]
-
-
-def panels_from_posterior(dt):
-    """Figure panels (see :func:`teffmc.report.figures.fit_fig`) rebuilt from a DataTree."""
-    panels = []
-    for ch in json.loads(dt.attrs["channels"]):
-        key = ch["key"]
-        pred = dt["posterior_predictive"].ds[key].values
-        panels.append({"kind": ch["kind"], "label": ch["label"], "bands": ch["bands"],
-                       "key": key, "data": dt["observed_data"].ds[key].values,
-                       "x": dt["constant_data"].ds[f"{key}__x"].values,
-                       "err": dt["constant_data"].ds[f"{key}__err"].values,
-                       "draws": pred.reshape(-1, pred.shape[-1])})
-    return panels
 
 
 def redraw(run_dir, formats=FORMATS):

@@ -1,6 +1,7 @@
-"""A small, fast run folder for the report tests (blackbody grid, short chains).
+"""A small, fast run folder for the report tests (Planck grid file, short chains).
 
-Two epochs of an invented star simulated with the blackbody grid (a 100 K cooling and a
+Two epochs of an invented star simulated with a small grid file of Planck spectra (so the
+run records a real SHA-256 grid checksum) (a 100 K cooling and a
 fresh veil of 1 um grains at the faint epoch), fitted under two hypotheses (cooling +
 veil; cooling alone) and compared: every figure of the report has something to draw
 (masked range, photometry, budget per hypothesis, Delta Teff, Pareto k). Not the demo:
@@ -14,6 +15,8 @@ import numpy as np
 from teffmc.config import ModelSpec
 from teffmc.errors import ConvergenceWarning
 from teffmc.photosphere import load_grid
+from teffmc.photosphere.blackbody import planck_surface_flux
+from teffmc.photosphere.grid import Grid
 from teffmc.run import fit
 from teffmc.simulate import simulate_epoch
 
@@ -26,7 +29,7 @@ TRUTH = {"bright": {**BASE, "teff": 4400.0, "veil_tau": 0.0},
 
 CONFIG = """\
 name = "Testa (invented test star)"
-grid = "blackbody"
+grid = "planck.h5"
 shared = ["logg", "mh", "a_v", "r_v", "theta", "grain_radius"]
 distance_pc = { dist = "normal", mean = 500.0, sd = 50.0 }
 [[hypothesis]]
@@ -61,10 +64,24 @@ seed = 3
 """
 
 
+def planck_grid(path):
+    """A grid file of Planck surface fluxes, 3000-6000 K every 100 K (log g and [M/H]
+    have no effect), 0.3-3 um at lambda/dlambda = 2000; returns the loaded grid."""
+    teff = np.arange(3000.0, 6001.0, 100.0)
+    wave = np.geomspace(3000.0, 30000.0, int(np.log(10.0) * 2000))
+    lf = np.log10(planck_surface_flux(wave, teff))
+    cube = np.broadcast_to(lf[:, None, None, :], (teff.size, 2, 2, wave.size)).copy()
+    Grid(teff, np.array([-1.0, 1.0]), np.array([-1.0, 0.5]), wave, cube,
+         provenance={"source": "Planck's law, computed (a test grid)",
+                     "approximate": "yes: no lines or bands, for tests only"},
+         name="planck-test").write(path)
+    return load_grid(str(path))
+
+
 def make_report_run(folder, max_steps=4000):
     """Simulate the data into ``folder`` and fit them into ``folder/run``; return the
     :class:`teffmc.run.FitResult` of the best hypothesis (``.comparison`` set)."""
-    grid = load_grid("blackbody")
+    grid = planck_grid(folder / "planck.h5")
     rng = np.random.default_rng(11)
     model = ModelSpec(veil="mie", grain_spread_dex=0.1)
     for label, truth in TRUTH.items():

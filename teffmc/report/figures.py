@@ -6,6 +6,7 @@ it as PDF and PNG. The other figures (hypotheses, budget, Delta Teff, diagnostic
 :mod:`teffmc.report.figures_more`.
 """
 
+import json
 from pathlib import Path
 
 import numpy as np
@@ -15,7 +16,8 @@ from . import style
 from .style import CAUTION, COLUMN, PAGE, plain_text, unit_label
 
 __all__ = ["corner_figure", "fit_figure", "corner_fig", "fit_fig", "CAUTION", "gapped",
-           "param_label", "plain_text", "CORNER_MAX", "masked_gaps", "DERIVED_LABELS"]
+           "param_label", "plain_text", "CORNER_MAX", "masked_gaps", "DERIVED_LABELS",
+           "panels_from_posterior"]
 
 #: at most this many parameters in the corner plot (readable at page width); the rest
 #: are in the table and the diagnostics
@@ -68,9 +70,14 @@ def param_label(name):
 
 
 def _head(fig, title, converged):
-    head = title or ""
-    if not converged:
-        head = f"{head}\n{CAUTION}" if head else CAUTION
+    """The figure's title (the star's name, wrapped to the figure's width) and, for a run
+    that did not converge, the caution in red."""
+    import textwrap
+
+    # about 10 characters of 9 pt text per inch, with room to spare
+    lines = [textwrap.fill(t, int(10 * fig.get_figwidth()))
+             for t in ([title] if title else []) + ([] if converged else [CAUTION])]
+    head = "\n".join(lines)
     if head:
         plain_text(fig.suptitle(head, color="black" if converged else "#D55E00"))
 
@@ -83,6 +90,7 @@ def corner_order(names):
     return sorted(names, key=lambda n: (rank(n), names.index(n)))[:CORNER_MAX]
 
 
+@style.styled
 def corner_fig(samples, names, *, truths=None, converged=True, title=None):
     """Corner plot: marginal histograms and 39 % / 86 % (1 and 2 sigma of a 2-D normal)
     highest-density contours of the pairs, for up to :data:`CORNER_MAX` parameters."""
@@ -239,6 +247,7 @@ def _band_names(ax, um, d, bands):
                                fontsize=6, color="0.3"))
 
 
+@style.styled
 def fit_fig(panels, *, converged=True, title=None, models=None):
     """Data, model and normalised residuals: one pair of axes per data set, epochs in
     rows. Masked ranges are shaded. ``models`` (hypotheses overlaid) maps each panel's
@@ -264,6 +273,20 @@ def fit_fig(panels, *, converged=True, title=None, models=None):
                 plain_text(t)
     _head(fig, title, converged)
     return fig
+
+
+def panels_from_posterior(dt):
+    """Figure panels (see :func:`fit_fig`) rebuilt from a run's DataTree."""
+    panels = []
+    for ch in json.loads(dt.attrs["channels"]):
+        key = ch["key"]
+        pred = dt["posterior_predictive"].ds[key].values
+        panels.append({"kind": ch["kind"], "label": ch["label"], "bands": ch["bands"],
+                       "key": key, "data": dt["observed_data"].ds[key].values,
+                       "x": dt["constant_data"].ds[f"{key}__x"].values,
+                       "err": dt["constant_data"].ds[f"{key}__err"].values,
+                       "draws": pred.reshape(-1, pred.shape[-1])})
+    return panels
 
 
 def _save_one(fig, path, converged):

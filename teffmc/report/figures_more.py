@@ -9,7 +9,7 @@ import numpy as np
 
 from .. import posterior as post_mod
 from . import style
-from .figures import _head, corner_order, fit_fig, param_label
+from .figures import _head, corner_order, fit_fig, panels_from_posterior, param_label
 from .style import COLUMN, PAGE, SERIES, plain_text, unit_label
 
 __all__ = ["hypotheses_fig", "budget_fig", "delta_teff_fig", "diagnostics_fig",
@@ -27,10 +27,9 @@ def later_epochs(dt):
             if n.startswith("delta_v@")]
 
 
+@style.styled
 def hypotheses_fig(runs, *, title=None):
     """Every data set with each hypothesis's model overlaid. ``runs``: [(name, dt)]."""
-    from ..rereport import panels_from_posterior
-
     per_run = [panels_from_posterior(dt) for _, dt in runs]
     panels = per_run[0]
     models = [[(name, pans[i]["draws"]) for (name, _), pans in zip(runs, per_run)]
@@ -45,6 +44,7 @@ def _interval_row(ax, y, x, color, marker):
     ax.plot([med], [y], marker, color=color, mfc="white", ms=4)
 
 
+@style.styled
 def budget_fig(runs, *, title=None, converged=True):
     """The dimming budget: Delta V between epochs and its temperature / veil / radius
     parts (teffmc.budget's telescoping order), median with 68 % (thick) and 95 % (thin)
@@ -67,6 +67,7 @@ def budget_fig(runs, *, title=None, converged=True):
         ax.axvline(0, color="0.5", lw=0.5)
         ax.set_yticks(range(n))
         ax.set_yticklabels([lab for _, lab in BUDGET_PARTS][::-1])
+        ax.set_ylabel(unit_label("part of the dimming", ""))
         ax.set_ylim(-0.6, n - 0.4)
         ax.set_xlabel(unit_label(f"ΔV ({ep} − reference)", "mag"))
         plain_text(ax.set_title(f"epoch {ep}", loc="left"))
@@ -77,6 +78,7 @@ def budget_fig(runs, *, title=None, converged=True):
     return fig
 
 
+@style.styled
 def delta_teff_fig(runs, *, title=None, converged=True):
     """Posterior of Delta Teff = Teff(epoch) - Teff(reference), per hypothesis."""
     epochs = later_epochs(runs[0][1]) or [
@@ -133,6 +135,7 @@ def _rank_panel(ax, chains, name, n_groups=4):
     ax.set_title(param_label(name), fontsize=6)
 
 
+@style.styled
 def diagnostics_fig(dt, summary, log_text, *, title=None):
     """Convergence at a glance: rank plots of up to 8 parameters (walkers in 4 groups),
     the stop rule's tau estimates against chain length with the required length

@@ -154,8 +154,7 @@ def write_run_products(folder, formats=FORMATS, *, dt=None, summary=None, compar
 def run_figures(dt, summary, log_text, *, comparison=None):
     """``{file stem: (Figure, caption)}`` of one run (and its comparison, if any)."""
     from .. import posterior as post_mod
-    from ..rereport import panels_from_posterior
-    from .figures import CORNER_MAX, corner_fig, fit_fig
+    from .figures import CORNER_MAX, corner_fig, fit_fig, panels_from_posterior
     from .figures_more import (budget_fig, delta_teff_fig, diagnostics_fig, hypotheses_fig,
                                later_epochs)
 

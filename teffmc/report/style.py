@@ -12,7 +12,7 @@ import numpy as np
 
 __all__ = ["COLUMN", "PAGE", "PALETTE", "figure", "save", "save_many", "text_overlaps",
            "unit_label",
-           "CAUTION", "plain_text", "png_meta"]
+           "CAUTION", "plain_text", "png_meta", "DIMENSIONLESS", "styled"]
 
 COLUMN, PAGE = 3.5, 7.1   # [inch]
 #: Okabe & Ito (2008): black, orange, sky blue, bluish green, yellow, blue, vermillion,
@@ -46,6 +46,18 @@ def rc():
     return {**RC, "axes.prop_cycle": cycler(color=SERIES)}
 
 
+def styled(build):
+    """Run a figure builder inside the journal rcParams (texts made after the figure
+    takes them from the rcParams in force when they are made)."""
+    import functools
+
+    @functools.wraps(build)
+    def wrapper(*args, **kwargs):
+        with _plt().rc_context(rc()):
+            return build(*args, **kwargs)
+    return wrapper
+
+
 def figure(width=PAGE, height=None, **kw):
     """A figure of a journal width [inch] with constrained layout."""
     plt = _plt()
@@ -66,8 +78,16 @@ def png_meta(converged):
     return {"Software": "teffmc", "Description": "converged" if converged else CAUTION}
 
 
+#: labels of dimensionless quantities made by :func:`unit_label` (the figure tests accept
+#: exactly these without a bracketed unit)
+DIMENSIONLESS = set()
+
+
 def unit_label(text, unit):
-    """``"text [unit]"``; a dimensionless quantity (unit "") keeps its bare symbol."""
+    """``"text [unit]"``; a dimensionless quantity (unit "") keeps its bare symbol and is
+    recorded in :data:`DIMENSIONLESS`."""
+    if not unit:
+        DIMENSIONLESS.add(text)
     unit = {"um": "µm", "km/s": "km s$^{-1}$", "W m^-2": "W m$^{-2}$", "R_sun": "$R_\\odot$",
             "L_sun": "$L_\\odot$"}.get(unit, unit)
     return f"{text} [{unit}]" if unit else text
