@@ -184,3 +184,28 @@ def test_survey_in_chromium(browser, survey, tmp_path):
     down = [v for v in teffs() if v is not None]
     assert down == sorted(nums, reverse=True)
     browser.save_screenshot(str(_artefacts(tmp_path) / "survey.png"))
+
+
+def test_survey_latex_table_compiles(survey, tmp_path):
+    """survey.tex (one row per fitted star) through a real pdflatex; its values are the
+    batch table's, rounded by the paper tables' rule (tests/test_latex_tables.py)."""
+    import subprocess
+
+    from astropy.table import Table
+
+    from teffmc.report.latex import round_value
+
+    tex = (survey / "survey.tex").read_text(encoding="utf-8")
+    (tmp_path / "doc.tex").write_text(
+        r"\documentclass{article}\begin{document}" + tex + r"\end{document}",
+        encoding="utf-8")
+    r = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-halt-on-error", "doc.tex"],
+                       cwd=tmp_path, capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stdout[-3000:]
+    t = Table.read(survey / "batch.ecsv", format="ascii.ecsv")
+    for row in t:
+        if row["status"] == "failed":
+            assert f"{row['star']} &" not in tex
+            continue
+        med, lo, hi = (float(row[f"teff_{k}"]) for k in ("median", "p16", "p84"))
+        assert round_value(med, hi - med, med - lo).text in tex

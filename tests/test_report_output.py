@@ -144,7 +144,11 @@ def test_unit_check_can_fail():
     ax = fig.subplots()
     ax.plot([0, 1], [0, 1])
     ax.set_xlabel("wavelength")
+    ax.set_ylabel("flux [erg s-1 cm-2 A-1]")
     assert _axis_labels_ok(fig) == [("no unit", "wavelength")]
+    ax.set_xlabel("wavelength [um]")
+    ax.set_ylabel("")
+    assert _axis_labels_ok(fig)[0][0] == "no label"
 
 
 def test_masked_ranges_are_shaded(report_run):

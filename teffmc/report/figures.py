@@ -76,7 +76,7 @@ def _head(fig, title, converged):
 
     # about 10 characters of 9 pt text per inch, with room to spare
     lines = [textwrap.fill(t, int(10 * fig.get_figwidth()))
-             for t in ([title] if title else []) + ([] if converged else [CAUTION])]
+             for t in (title.split("\n") if title else []) + ([] if converged else [CAUTION])]
     head = "\n".join(lines)
     if head:
         plain_text(fig.suptitle(head, color="black" if converged else "#D55E00"))

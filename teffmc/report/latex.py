@@ -31,7 +31,7 @@ from ..errors import ConfigError
 from ..parameters import LABELS, UNITS
 
 __all__ = ["Rounded", "round_value", "latex_escape", "latex_table", "csv_table", "compare_latex",
-           "compare_csv",
+           "compare_csv", "survey_latex",
            "INTERVAL_NOTE"]
 
 INTERVAL_NOTE = ("Values are posterior medians; intervals are the 16th--84th percentiles of "
@@ -333,3 +333,34 @@ def compare_csv(rows):
         w.writerow([r.get(c) if c in ("run", "n_points", "n_bad_k", "converged")
                     else _num(r.get(c)) for c in cols])
     return buf.getvalue()
+
+
+def _survey_value(v):
+    if v.get("p16") is None or v.get("p84") is None:
+        return round_value(v["median"], None, None).text
+    return round_value(v["median"], v["p84"] - v["median"], v["median"] - v["p16"]).text
+
+
+def survey_latex(rows, names, *, caption="Survey results", label="tab:teffmc-survey"):
+    """A LaTeX table with one row per star: status and the rounded value of each
+    parameter in ``names`` (``rows`` as :func:`teffmc.report.survey.survey_rows` gives,
+    ``vals`` holding a dict with median, p16, p84 per name)."""
+    heads = ["Star", "Status"] + [_label_unit(n)[0] + (
+        f" ({LATEX_UNITS.get(_label_unit(n)[1], latex_escape(_label_unit(n)[1]))})"
+        if _label_unit(n)[1] else "") for n in names]
+    body = []
+    for r in rows:
+        cells = [latex_escape(r["star"]), latex_escape(r["status"].replace("_", " "))]
+        for n in names:
+            v = r["vals"].get(n)
+            cells.append(r"\ldots" if v is None else
+                         f"${_survey_value(v)}$")
+        body.append(" & ".join(cells) + r" \\")
+    note = (INTERVAL_NOTE + " Rows with status ``not converged'' must not be quoted; "
+            "``failed'' rows have no run.")
+    return "\n".join([r"\begin{table}", r"\centering", rf"\caption{{{caption}}}",
+                      rf"\label{{{label}}}", r"\begin{tabular}{ll" + "c" * len(names) + "}",
+                      r"\hline", " & ".join(heads) + r" \\", r"\hline", *body, r"\hline",
+                      r"\end{tabular}", "", r"\smallskip",
+                      rf"\parbox{{0.9\linewidth}}{{\footnotesize Note. {note}}}",
+                      r"\end{table}", ""])

@@ -8,7 +8,7 @@ twice, with LaTeX or Markdown filters, so the two texts say the same.
 """
 
 import math
-from pathlib import Path
+from pathlib import Path, PurePath
 
 from ..parameters import UNITS
 from .bibliography import LAW_KEYS, bibtex, short_cite
@@ -89,6 +89,8 @@ def methods_context(record, summary, *, comparison=None, star=None):
     versions = t.get("versions", {})
     grid = prov.get("grid", {"name": t.get("grid", "?"), "checksum": t.get("grid_checksum", "?"),
                              "provenance": {}})
+    # the grid file's name, not the folder it sat in on the author's machine
+    grid = {**grid, "name": PurePath(str(grid.get("name", "?"))).name}
     priors, fixed = _priors(record)
     data = prov.get("data", [])
     mism = sorted({d.get("mismatch", "none") for d in data if d.get("kind") == "spectrum"})
@@ -145,14 +147,17 @@ def render_methods(ctx, fmt):
     env.filters["e"] = latex_escape if tex else _md_escape
     env.filters["code"] = (lambda s: r"\texttt{" + latex_escape(s) + "}") if tex else (
         lambda s: f"`{s}`")
-    env.filters["cite"] = lambda k: cite(k, _cite_tex if tex else _cite_md)
+    # evaluated at render time (a plain filter on a constant would be folded at compile
+    # time, recording the keys of branches that are never rendered)
+    env.filters["cite"] = jinja2.pass_context(
+        lambda _ctx, k: cite(k, _cite_tex if tex else _cite_md))
     env.filters["g"] = _g
     env.globals.update(tex=tex, pct=r"\%" if tex else "%",
                        sigma=r"$\sigma$" if tex else "σ", tau=r"$\tau$" if tex else "τ",
                        rhat=r"$\hat{R}$" if tex else "R-hat", chi2=r"$\chi^2/\nu$" if tex
                        else "χ²/ν", approx=r"$\approx$" if tex else "≈",
                        times=r"$\times$" if tex else "×", lt=r"$<$" if tex else "<",
-                       gt=r"$>$" if tex else ">", AA=r"\AA" if tex else "Å",
+                       gt=r"$>$" if tex else ">", AA=r"\AA{}" if tex else "Å",
                        pm=r"$\pm$" if tex else "±", mu=r"$\mu$" if tex else "µ",
                        teff=r"$T_\mathrm{eff}$" if tex else "Teff",
                        av=r"$A_V$" if tex else "A_V", rv=r"$R_V$" if tex else "R_V",

@@ -158,8 +158,14 @@ def run_figures(dt, summary, log_text, *, comparison=None):
     from .figures_more import (budget_fig, delta_teff_fig, diagnostics_fig, hypotheses_fig,
                                later_epochs)
 
+    from ..goodness import BAD_CHI2_NU
+
     converged = bool(summary.get("converged"))
     title = dt.attrs.get("title", "")
+    bad = [k for k, g in (summary.get("goodness_of_fit") or {}).items()
+           if g.get("chi2_nu") is not None and g["chi2_nu"] > BAD_CHI2_NU]
+    fit_title = title + (f"\nBAD FIT: {len(bad)} data set(s) with chi2/nu > {BAD_CHI2_NU:g} "
+                         "(see summary.json)" if bad else "")
     names = json.loads(dt.attrs["sampled_names"])
     samples = np.column_stack([post_mod.draws(dt, n) for n in names])
     figs = {"corner": (corner_fig(samples, names, converged=converged, title=title),
@@ -167,7 +173,7 @@ def run_figures(dt, summary, log_text, *, comparison=None):
                        "ones first): marginal histograms with the 16th, 50th and 84th "
                        "percentiles (dashed), and contours holding 39 % and 86 % of the "
                        "draws."),
-            "fit": (fit_fig(panels_from_posterior(dt), converged=converged, title=title),
+            "fit": (fit_fig(panels_from_posterior(dt), converged=converged, title=fit_title),
                     "Data (black), the posterior median model and its 16–84 % band, and "
                     "the residuals in units of the errors; masked ranges shaded.")}
     runs = [(summary.get("hypothesis") or "this run", dt)]

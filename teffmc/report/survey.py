@@ -42,7 +42,8 @@ def survey_rows(batch_dir):
             med, lo, hi = (_f(r[f"{n}_{k}"]) if not np.ma.is_masked(r[f"{n}_{k}"]) else None
                            for k in ("median", "p16", "p84"))
             if med is not None:
-                values[n] = {"median": med, "html": rounded_html(med, lo, hi)}
+                values[n] = {"median": med, "p16": lo, "p84": hi,
+                             "html": rounded_html(med, lo, hi)}
         chi2 = None
         if run_dir is not None and (run_dir / "summary.json").is_file():
             gof = json.loads((run_dir / "summary.json").read_text(encoding="utf-8")).get(
@@ -52,7 +53,7 @@ def survey_rows(batch_dir):
         link = (f"{run}/report.html" if run_dir is not None
                 and (run_dir / "report.html").is_file() else None)
         n_steps = None if np.ma.is_masked(r["n_steps"]) else int(r["n_steps"])
-        rows.append({"star": str(r["star"]), "status": str(r["status"]), "values": values,
+        rows.append({"star": str(r["star"]), "status": str(r["status"]), "vals": values,
                      "chi2": chi2, "n_steps": n_steps, "link": link,
                      "reason": str(r["caution"] or r["reason"])})
     return rows, names
@@ -72,13 +73,13 @@ def survey_figures(rows, names):
     images = {}
     if teff is None:
         return images
-    ok = [r for r in rows if r["status"] == "ok" and teff in r["values"]]
-    bad = [r for r in rows if r["status"] == "not_converged" and teff in r["values"]]
+    ok = [r for r in rows if r["status"] == "ok" and teff in r["vals"]]
+    bad = [r for r in rows if r["status"] == "not_converged" and teff in r["vals"]]
     fig = style.figure(style.COLUMN, 2.6)
     ax = fig.subplots()
-    allv = [r["values"][teff]["median"] for r in ok + bad]
+    allv = [r["vals"][teff]["median"] for r in ok + bad]
     bins = np.histogram_bin_edges(allv, bins=min(20, max(5, len(allv)))) if allv else 10
-    ax.hist([[r["values"][teff]["median"] for r in ok], [r["values"][teff]["median"]
+    ax.hist([[r["vals"][teff]["median"] for r in ok], [r["vals"][teff]["median"]
                                                           for r in bad]],
             bins=bins, stacked=True, color=[style.SERIES[0], style.SERIES[1]],
             label=["converged", "not converged"])
@@ -91,8 +92,8 @@ def survey_figures(rows, names):
         ax = fig.subplots()
         for group, color, marker, lab in ((ok, style.SERIES[0], "o", "converged"),
                                           (bad, style.SERIES[1], "D", "not converged")):
-            pts = [(r["values"][teff]["median"], r["values"][av]["median"]) for r in group
-                   if av in r["values"]]
+            pts = [(r["vals"][teff]["median"], r["vals"][av]["median"]) for r in group
+                   if av in r["vals"]]
             if pts:
                 x, y = np.array(pts).T
                 ax.plot(x, y, marker, ls="none", ms=4, color=color,
@@ -116,7 +117,8 @@ def _png(fig):
 
 
 def write_survey_html(batch_dir):
-    """Write ``batch_dir/survey.html`` from its batch table; return the path."""
+    """Write ``batch_dir/survey.html`` (and survey.tex, the paper table of the same
+    rows) from its batch table; return the path of survey.html."""
     batch_dir = Path(batch_dir)
     rows, names = survey_rows(batch_dir)
     shown = corner_order(names)
@@ -126,4 +128,9 @@ def write_survey_html(batch_dir):
                        title=f"Survey {batch_dir.name}")
     path = batch_dir / "survey.html"
     path.write_text(html, encoding="utf-8")
+    # the same rows as a LaTeX table (stars with a run; values rounded for print)
+    from .latex import survey_latex
+
+    done = [r for r in rows if r["vals"]]
+    (batch_dir / "survey.tex").write_text(survey_latex(done, shown), encoding="utf-8")
     return path
