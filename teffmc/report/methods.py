@@ -87,8 +87,11 @@ def methods_context(record, summary, *, comparison=None, star=None):
     model = prov.get("model", {})
     sampler = prov.get("sampler", {})
     versions = t.get("versions", {})
-    grid = prov.get("grid", {"name": t.get("grid", "?"), "checksum": t.get("grid_checksum", "?"),
-                             "provenance": {}})
+    sgrid = summary.get("grid") if isinstance(summary.get("grid"), dict) else {}
+    name = t.get("grid", sgrid.get("name", "not recorded"))
+    grid = {"name": name, "label": PurePath(str(name)).stem,
+            "checksum": t.get("grid_checksum", sgrid.get("checksum", "not recorded")),
+            "provenance": {}, "nuisance": [], **prov.get("grid", {})}
     # the grid file's name, not the folder it sat in on the author's machine
     grid = {**grid, "name": PurePath(str(grid.get("name", "?"))).name}
     priors, fixed = _priors(record)

@@ -85,6 +85,9 @@ def survey_figures(rows, names):
             label=["converged", "not converged"])
     ax.set_xlabel(param_label(teff))
     ax.set_ylabel(style.unit_label("stars per bin", ""))
+    from matplotlib.ticker import MaxNLocator
+
+    ax.yaxis.set_major_locator(MaxNLocator(integer=True))
     ax.legend(frameon=False)
     images["teff_hist"] = _png(fig)
     if av is not None:
