@@ -194,7 +194,8 @@ def test_methods_match_the_run_files(report_run, hyp):
             if k != "dist":
                 assert f"{float(v):g}" in md.split(line, 1)[1].split("\n", 1)[0], (name, k)
         assert r"\texttt{" + name.replace("_", r"\_") + "}" in tex
-    assert "distance" in md and "mean 500" in md  # the distance prior of the config
+    if "distance_pc" in record:  # the distance prior of the config
+        assert f"(distance): {prior_text(record['distance_pc'], 'pc')}" in md
     checksum = t["provenance"]["grid"]["checksum"]
     assert re.fullmatch(r"[0-9a-f]{64}", checksum) and checksum == summary["grid"]["checksum"]
     assert checksum in md and checksum in tex
