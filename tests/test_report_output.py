@@ -282,3 +282,27 @@ def test_report_command_writes_the_formats_asked_and_keeps_the_sources(report_ru
     assert {f: _sha(run / f) for f in sources} == sources
     assert is_complete(run)
     assert main(["report", str(run), "--format", "html,docx"]) == 2
+
+
+def test_run_table_compiles_and_shows_summary_values(report_run, tmp_path):
+    """Acceptance 1 on a real run: table.tex through pdflatex; the compiled text holds
+    every parameter's value rounded by the rule (tests/test_latex_tables.py) from
+    summary.json."""
+    from teffmc.report.latex import round_value
+
+    run = report_run[0] / "veil"
+    (tmp_path / "doc.tex").write_text(
+        r"\documentclass{article}\usepackage[T1]{fontenc}\begin{document}"
+        + (run / "table.tex").read_text(encoding="utf-8") + r"\end{document}",
+        encoding="utf-8")
+    r = subprocess.run(["pdflatex", "-interaction=nonstopmode", "-halt-on-error", "doc.tex"],
+                       cwd=tmp_path, capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stdout[-3000:]
+    txt = subprocess.run(["pdftotext", "doc.pdf", "-"], cwd=tmp_path, capture_output=True,
+                         text=True, check=True, timeout=60).stdout
+    tokens = set(txt.replace("−", " ").replace("+", " ").replace("±", " ").split())
+    _, summary = _run_files(run)
+    for name, s in summary["parameters"].items():
+        rv = round_value(s["median"], s["p84"] - s["median"], s["median"] - s["p16"])
+        value = re.match(r"\(?(-?[\d.]+)", rv.text).group(1).lstrip("-")
+        assert value in tokens, (name, rv.text)
