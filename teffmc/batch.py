@@ -493,6 +493,8 @@ def _fit_many_locked(plan, out, workers, scheduler, redo, quiet):
         _write_tables(rows, out)
         if todo:
             engine.run(plan, todo, rows, out, redo, progress)
+        from .report.survey import write_survey_html  # survey.html beside batch.ecsv
+        write_survey_html(out)
         counts = {s: sum(r["status"] == s for r in rows) for s in STATUSES}
         progress.line(f"done in {_duration(time.perf_counter() - progress.t0)}: "
                       f"{counts['ok']} ok, {counts['not_converged']} not converged, "

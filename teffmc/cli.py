@@ -97,14 +97,12 @@ def _cmd_demo(args):
 
 
 def _cmd_report(args):
-    from .rereport import parse_formats, redraw, write_tables
+    from .rereport import FORMATS, parse_formats, redraw
 
-    if args.format is not None:
-        written = write_tables(Path(args.run_dir), parse_formats(args.format))
-        print("tables written: " + ", ".join(str(p) for p in written))
-        return 0
-    redraw(Path(args.run_dir))
-    print(f"figures and tables redrawn in {args.run_dir}")
+    formats = parse_formats(args.format) if args.format is not None else list(FORMATS)
+    written = redraw(Path(args.run_dir), formats)
+    print(f"{len(written)} files written in {args.run_dir}: "
+          + ", ".join(sorted({p.name for p in written})))
     return 0
 
 
@@ -196,15 +194,19 @@ def build_parser():
 
     c = sub.add_parser("compare", help="compare hypotheses fitted to the same data")
     c.add_argument("run_dirs", nargs="+", help="run folders written by `teffmc fit`")
-    c.add_argument("--out", help="folder for compare.json, compare.ecsv, compare.png")
+    c.add_argument("--out", help="folder for compare.json, compare.ecsv and the comparison's "
+                   "report (hypotheses/budget figures, compare_table.tex, report.html)")
     c.set_defaults(func=_cmd_compare)
 
-    r = sub.add_parser("report", help="redraw figures and tables of a finished run")
-    r.add_argument("run_dir")
+    r = sub.add_parser("report", help="write the report files of a finished run (figures, "
+                       "paper tables, methods paragraph, report.html)")
+    r.add_argument("run_dir", help="a run folder, or a folder of hypotheses or grids")
     r.add_argument("--format", metavar="LIST",
-                   help="write only paper tables from summary.json, a comma-separated list: "
-                   "tex (table.tex, LaTeX tabular; table_aastex.tex, AASTeX deluxetable), "
-                   "csv (table.csv); without it, figures and summary tables are redrawn")
+                   help="a comma-separated list (default: all): pdf, png (figures: corner, "
+                   "fit, diagnostics, and with several epochs budget and delta_teff; with a "
+                   "comparison hypotheses), tex (table.tex, table_aastex.tex, methods.tex, "
+                   "references.bib), md (methods.md), csv (table.csv), html (report.html, "
+                   "self-contained); summary.ecsv is always rewritten")
     r.set_defaults(func=_cmd_report)
 
     g = sub.add_parser("grid", help="build, import or describe a photosphere grid")

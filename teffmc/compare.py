@@ -32,7 +32,8 @@ class Comparison:
 
 
 def compare_runs(run_dirs, out=None):
-    """Compare hypotheses; write compare.json, compare.ecsv, compare.png into ``out``."""
+    """Compare hypotheses; write compare.json, compare.ecsv and the comparison's report
+    (figures, compare_table.tex/.csv, report.html: teffmc.report.output) into ``out``."""
     if len(run_dirs) < 2:
         raise DataError("compare needs at least two run folders", file=str(run_dirs[0]))
     runs = [(Path(d), *post_mod.load_run(d)) for d in run_dirs]
@@ -72,11 +73,22 @@ def compare_runs(run_dirs, out=None):
         out = Path(out)
         out.mkdir(parents=True, exist_ok=True)
         _write(rows, out)
-        from .report.compare_figure import compare_figure
-
-        compare_figure([(s.get("hypothesis") or d.name, dt, s) for d, dt, s in runs],
-                       out / "compare.png")
+        _report(out, rows, [(lab, dt, s, d) for lab, (d, dt, s) in zip(labels, runs)])
     return Comparison(rows=rows, text=text, out=out)
+
+
+def _report(out, rows, runs):
+    """The comparison's report files; when ``out`` is itself one of the runs (the demo's
+    folder), that run's report gains the comparison."""
+    from .report.output import write_comparison_products, write_run_products
+    from .report.tables import strict_json
+
+    comparison = {"rows": strict_json(rows), "runs": runs}
+    own = [r for r in runs if Path(r[3]).resolve() == Path(out).resolve()]
+    if own:
+        write_run_products(out, dt=own[0][1], summary=own[0][2], comparison=comparison)
+    else:
+        write_comparison_products(out, comparison)
 
 
 def _number(v):

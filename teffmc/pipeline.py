@@ -14,11 +14,14 @@ from . import posterior as post_mod
 from .budget import dimming_budget
 from .derived import bolometric
 from .goodness import cautions as gof_cautions
-from .goodness import BAD_CHI2_NU, goodness_of_fit
+from .goodness import goodness_of_fit
 from .likelihood import pixel_variance
 from .model import Dust, band_pixels, observed_flux
 from .priors import Prior
-from .report import corner_figure, fit_figure, write_summary
+from .provenance import data_labels, run_provenance
+from .report import write_summary
+from .report.output import write_run_products
+from .report.tables import strict_json
 from .tomlout import dumps_toml
 
 __all__ = ["sample_posterior", "finish_run", "derived_quantities", "VBand"]
@@ -197,7 +200,7 @@ def _take(p, idx):
 def _versions():
     out = {"python": platform.python_version(), "teffmc": __version__}
     for pkg in ("numpy", "scipy", "astropy", "emcee", "arviz", "dust_extinction", "speclite",
-                "miepython", "matplotlib"):
+                "miepython", "matplotlib", "dynesty", "numba", "jinja2"):
         try:
             out[pkg] = metadata.version(pkg)
         except metadata.PackageNotFoundError:
@@ -206,12 +209,13 @@ def _versions():
 
 
 def _panels(prep, predictive):
-    panels = []
+    panels, names = [], data_labels(prep.config)
     for label, chans in prep.channels.items():
         for ch in chans:
             key = f"{label}.{ch.name}"
             draws = predictive[key].reshape(-1, ch.n_points)
-            pan = {"kind": ch.kind, "label": f"epoch {label}: {ch.name}", "data": ch.data,
+            pan = {"kind": ch.kind, "label": names.get(key, f"{label}: {ch.name}"),
+                   "data": ch.data,
                    "err": ch.err, "draws": draws}
             if ch.kind == "spectrum":
                 pan["x"] = ch.wave
@@ -278,7 +282,8 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
                    "grid": cfg.grid, "grid_checksum": grid_checksum,
                    "command": " ".join(sys.argv), "versions": _versions(),
                    "free_parameters": list(space.names), "fixed": space.fixed_values(),
-                   "priors": space.priors_dict(), "data_checksum": data_checksum(prep)},
+                   "priors": space.priors_dict(), "data_checksum": data_checksum(prep),
+                   "provenance": run_provenance(prep)},
         **cfg.raw,
     }
     attrs = {"config": dumps_toml(record), "seed": cfg.sampler.seed,
@@ -329,17 +334,12 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
     _add_stat_intervals(summary, space, flat, derived)
     write_summary(summary, folder / "summary.json", folder / "summary.ecsv")
     (folder / "run.toml").write_text(dumps_toml(record), encoding="utf-8")
-    log("figures")
-    corner_figure(flat, space.names, folder / "corner.png", converged=result.converged,
-                  title=cfg.name)
-    bad = gof_cautions(gof)
-    fit_figure(_panels(prep, predictive), folder / "fit.png", converged=result.converged,
-               title=cfg.name + (f"\nBAD FIT: {len(bad)} data set(s) with chi2/nu > "
-                                 f"{BAD_CHI2_NU:g} (see summary.json)" if bad else ""))
+    log("report: figures, tables, methods, report.html")
     for c in summary["cautions"]:
         log("CAUTION: " + c)
     log(f"done: {folder.name.removesuffix('.partial')}")
     (folder / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
+    write_run_products(folder, dt=dt, summary=strict_json(summary))
     return dt, summary
 
 

@@ -41,7 +41,10 @@ __all__ = ["MARKER", "SOURCES", "RunLock", "run_lock", "batch_lock", "write_mark
 MARKER = "complete.json"
 #: files of a single run whose checksums the marker holds (the rest are redrawable)
 SOURCES = ("posterior.nc", "summary.json", "run.toml", "log.txt")
-PRODUCTS = ("summary.ecsv", "corner.png", "fit.png")
+PRODUCTS = ("summary.ecsv", "corner.png", "fit.png", "corner.pdf", "fit.pdf", "diagnostics.png",
+            "diagnostics.pdf", "budget.png", "budget.pdf", "delta_teff.png", "delta_teff.pdf",
+            "table.tex", "table_aastex.tex", "table.csv", "methods.tex", "methods.md",
+            "references.bib", "report.html")
 _FORMAT = 1
 
 

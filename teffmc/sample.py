@@ -20,7 +20,8 @@ from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
 from teffmc.interrupt import DeferredInterrupt
 from teffmc.sampling_checkpoint import memory_backend, resume_state, write_checkpoint
 from teffmc.sampling_start import find_start, initial_ball
-from teffmc.sampling_stop import autocorr_time, burn_thin, split_rhat, stop_rule
+from teffmc.sampling_stop import (RHAT_MAX, TAU_FACTOR, TAU_RTOL, autocorr_time, burn_thin,
+                                   split_rhat, stop_rule)
 
 __all__ = [
     "SampleResult",
@@ -177,9 +178,9 @@ def _rhat_check(chain, tau, n, names, rhat_max, text):
 
 
 def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000,
-                min_steps=1000, check_every=500, tau_factor=50.0, tau_rtol=0.01, moves=None,
-                checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3,
-                rhat_max=1.01):
+                min_steps=1000, check_every=500, tau_factor=TAU_FACTOR, tau_rtol=TAU_RTOL,
+                moves=None, checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3,
+                rhat_max=RHAT_MAX):
     """Sample a posterior with emcee until the autocorrelation stop rule is met.
 
     Parameters

@@ -28,6 +28,9 @@ from teffmc.errors import TeffmcError
 
 __all__ = ["autocorr_time", "stop_rule", "burn_thin"]
 
+TAU_FACTOR = 50.0  # chain length required, in units of max tau (common practice, no source)
+TAU_RTOL = 0.01    # relative change of tau allowed per 100 steps (emcee tutorial)
+RHAT_MAX = 1.01    # rank-normalised split R-hat limit (Vehtari et al. 2021, from memory)
 BURN_TAUS = 3.0  # burn-in in units of max tau (see module docstring)
 THIN_TAUS = 0.5  # thinning in units of min tau
 

@@ -201,6 +201,6 @@ def test_report_format_writes_tables(tmp_path, capsys):
     assert r"\begin{tabular}" in tex and r"of HD 1\_2 \& Co" in tex
     assert r"\begin{deluxetable}" in (tmp_path / "table_aastex.tex").read_text(encoding="utf-8")
     assert (tmp_path / "table.csv").read_text(encoding="utf-8").startswith("name,unit,")
-    assert main(["report", str(tmp_path), "--format", "pdf"]) == 2
+    assert main(["report", str(tmp_path), "--format", "docx"]) == 2
     assert "--format" in capsys.readouterr().err
     assert main(["report", str(tmp_path / "nothing"), "--format", "csv"]) == 2

@@ -310,6 +310,7 @@ def test_kill_at_every_step_of_discard(star, tmp_path):
 
 def test_report_killed_midway_leaves_the_run_finished(star, tmp_path, monkeypatch):
     from teffmc import rereport
+    from teffmc.report import output
 
     run = tmp_path / "run"
     shutil.copytree(star / "solo", run)
@@ -317,7 +318,7 @@ def test_report_killed_midway_leaves_the_run_finished(star, tmp_path, monkeypatc
     def killed(*a, **k):
         raise Killed
 
-    monkeypatch.setattr(rereport, "fit_figure", killed)
+    monkeypatch.setattr(output, "run_figures", killed)
     with pytest.raises(Killed):
         rereport.redraw(run)
     assert runfolder.is_complete(run)

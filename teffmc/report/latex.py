@@ -30,7 +30,8 @@ from typing import NamedTuple
 from ..errors import ConfigError
 from ..parameters import LABELS, UNITS
 
-__all__ = ["Rounded", "round_value", "latex_escape", "latex_table", "csv_table",
+__all__ = ["Rounded", "round_value", "latex_escape", "latex_table", "csv_table", "compare_latex",
+           "compare_csv", "survey_latex",
            "INTERVAL_NOTE"]
 
 INTERVAL_NOTE = ("Values are posterior medians; intervals are the 16th--84th percentiles of "
@@ -291,3 +292,75 @@ def csv_table(summary):
 
 def _num(x):
     return "" if x is None or not math.isfinite(x) else repr(float(x))
+
+
+def _f(x, spec):
+    return r"\ldots" if x is None or not math.isfinite(float(x)) else format(float(x), spec)
+
+
+def compare_latex(rows, *, caption="Comparison of the hypotheses", label="tab:teffmc-compare"):
+    """A LaTeX table of compare.json's rows: elpd_LOO with its standard error, the
+    difference to the best run with the standard error of the difference, ln Z when
+    computed, the count of Pareto k > 0.7 and the convergence verdict."""
+    head = (r"Hypothesis & $\mathrm{elpd_{LOO}}$ & $\Delta\mathrm{elpd_{LOO}}$ & "
+            r"$\ln Z$ & $N(\hat{k}>0.7)$ & Converged \\")
+    body = []
+    for r in rows:
+        body.append(" & ".join([
+            latex_escape(r["run"]),
+            f"${_f(r['elpd_loo'], '.1f')} \\pm {_f(r['se'], '.1f')}$",
+            f"${_f(r['elpd_diff'], '.1f')} \\pm {_f(r['se_diff'], '.1f')}$",
+            f"${_f(r.get('log_z'), '.1f')}$", str(r.get("n_bad_k", 0)),
+            "yes" if r.get("converged") else r"\textbf{no}"]) + r" \\")
+    note = ("elpd$_\\mathrm{LOO}$: expected log predictive density by PSIS-LOO (higher is "
+            "better); differences and their standard errors against the best hypothesis; "
+            "$\\ln Z$: nested-sampling evidence (\\ldots\\ when not computed).")
+    return "\n".join([r"\begin{table}", r"\centering", rf"\caption{{{caption}}}",
+                      rf"\label{{{label}}}", r"\begin{tabular}{lccccc}", r"\hline", head,
+                      r"\hline", *body, r"\hline", r"\end{tabular}", "", r"\smallskip",
+                      rf"\parbox{{0.9\linewidth}}{{\footnotesize Note. {note}}}",
+                      r"\end{table}", ""])
+
+
+def compare_csv(rows):
+    """compare.json's rows as CSV (full precision; empty where not computed)."""
+    cols = ["run", "elpd_loo", "se", "elpd_diff", "se_diff", "log_z", "log_z_err",
+            "n_points", "n_bad_k", "max_k", "converged"]
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(cols)
+    for r in rows:
+        w.writerow([r.get(c) if c in ("run", "n_points", "n_bad_k", "converged")
+                    else _num(r.get(c)) for c in cols])
+    return buf.getvalue()
+
+
+def _survey_value(v):
+    if v.get("p16") is None or v.get("p84") is None:
+        return round_value(v["median"], None, None).text
+    return round_value(v["median"], v["p84"] - v["median"], v["median"] - v["p16"]).text
+
+
+def survey_latex(rows, names, *, caption="Survey results", label="tab:teffmc-survey"):
+    """A LaTeX table with one row per star: status and the rounded value of each
+    parameter in ``names`` (``rows`` as :func:`teffmc.report.survey.survey_rows` gives,
+    ``vals`` holding a dict with median, p16, p84 per name)."""
+    heads = ["Star", "Status"] + [_label_unit(n)[0] + (
+        f" ({LATEX_UNITS.get(_label_unit(n)[1], latex_escape(_label_unit(n)[1]))})"
+        if _label_unit(n)[1] else "") for n in names]
+    body = []
+    for r in rows:
+        cells = [latex_escape(r["star"]), latex_escape(r["status"].replace("_", " "))]
+        for n in names:
+            v = r["vals"].get(n)
+            cells.append(r"\ldots" if v is None else
+                         f"${_survey_value(v)}$")
+        body.append(" & ".join(cells) + r" \\")
+    note = (INTERVAL_NOTE + " Rows with status ``not converged'' must not be quoted; "
+            "``failed'' rows have no run.")
+    return "\n".join([r"\begin{table}", r"\centering", rf"\caption{{{caption}}}",
+                      rf"\label{{{label}}}", r"\begin{tabular}{ll" + "c" * len(names) + "}",
+                      r"\hline", " & ".join(heads) + r" \\", r"\hline", *body, r"\hline",
+                      r"\end{tabular}", "", r"\smallskip",
+                      rf"\parbox{{0.9\linewidth}}{{\footnotesize Note. {note}}}",
+                      r"\end{table}", ""])
