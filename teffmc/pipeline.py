@@ -40,15 +40,17 @@ class SamplerCoordinates:
       demo with a correlated mismatch term: tau of ``mismatch_scale`` 478 steps sampled
       in x, ~70-100 in ln x.
     * the veil's covering fraction c and optical depth tau, when both are free in an
-      epoch, as (c, d) with d = c (1 - exp(-tau)), the fraction of the star's light the
-      veil removes at 0.55 micron (before scattering): the data measure d almost
-      directly, while c and tau trade along the curved ridge c (1 - e^-tau) = d, which
-      the ensemble's straight-line moves cross slowly (tau ~300 steps in the issue).
-      tau = -ln(1 - d / c), 0 <= d < c.
+      epoch, as (c, e) with e = -ln(1 - d) and d = c (1 - exp(-tau)) the fraction of
+      the star's light the veil removes at 0.55 micron (before scattering): the data
+      measure e almost directly, while c and tau trade along the curved ridge
+      c (1 - e^-tau) = d, which the ensemble's straight-line moves cross slowly (tau
+      ~300 steps in the issue). In e the dimming is a magnitude-like quantity, so its
+      trade with the angular diameter (2 ln theta - e ~ const for grey grains) is a
+      straight line too. d = 1 - e^-e, tau = -ln(1 - d / c), 0 <= d < c.
 
     The density in u carries the Jacobian, log p(u) = log p(x(u)) + log |dx/du| with
-    log |dx/du| = sum ln x (log coordinates) - sum ln(c - d) (veil pairs), so the
-    priors on x are unchanged (tests/test_coordinates.py).
+    log |dx/du| = sum ln x (log coordinates) + sum [-e - ln(c - d)] (veil pairs), so
+    the priors on x are unchanged (tests/test_coordinates.py).
     """
 
     def __init__(self, space, log_post):
@@ -70,8 +72,8 @@ class SamplerCoordinates:
         x = np.array(u, float, copy=True)
         x[..., self.log] = np.exp(x[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = x[..., t] / x[..., c]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            ratio = -np.expm1(-x[..., t]) / x[..., c]          # d / c
             inside = (ratio >= 0) & (ratio < 1)
             x[..., t] = np.where(inside, -np.log1p(-np.where(inside, ratio, 0.0)), np.nan)
         return x
@@ -80,14 +82,15 @@ class SamplerCoordinates:
         u = np.array(x, float, copy=True)
         u[..., self.log] = np.log(u[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
-        u[..., t] = -u[..., c] * np.expm1(-u[..., t])
+        u[..., t] = -np.log1p(u[..., c] * np.expm1(-u[..., t]))   # e = -ln(1 - d)
         return u
 
     def jacobian(self, u):
         u = np.asarray(u)
         t, c = self.pairs[:, 0], self.pairs[:, 1]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            pair = -np.sum(np.log(u[..., c] - u[..., t]), axis=-1)
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            d = -np.expm1(-u[..., t])
+            pair = -np.sum(u[..., t] + np.log(u[..., c] - d), axis=-1)
         return np.sum(u[..., self.log], axis=-1) + pair
 
     def __call__(self, u):

@@ -44,28 +44,29 @@ def test_round_trip_and_jacobian(rng):
 
 
 def test_prior_draws_have_the_density_of_the_coordinates(rng):
-    """Prior draws in x, mapped to (c, d), are distributed as exp(log p(u)): the priors
+    """Prior draws in x, mapped to (c, e), are distributed as exp(log p(u)): the priors
     of veil_tau and veil_cover are what the sampler sees."""
     space = _Space()
     coords = SamplerCoordinates(space, space.log_prior)
     n = 400_000
     u = coords.to_u(space.sample_prior(rng, n))
-    edges = np.linspace(0.0, 1.0, 11)
-    counts, _, _ = np.histogram2d(u[:, 3], u[:, 2], bins=[edges, edges])
+    edges = np.linspace(0.0, 1.0, 11)             # c
+    e_edges = np.linspace(0.0, 2.0, 11)           # e = -ln(1 - d)
+    counts, _, _ = np.histogram2d(u[:, 3], u[:, 2], bins=[edges, e_edges])
     fixed = np.array([3500.0, np.log(10.0)])
     sub = (np.arange(8) + 0.5) / 8 * 0.1
     checked = 0
     for a in range(10):
         for b in range(10):
-            c_lo, d_hi = edges[a], edges[b + 1]
-            if d_hi >= c_lo * (1 - np.exp(-3.0)) - 1e-12:
+            c_lo, e_hi = edges[a], e_edges[b + 1]
+            if e_hi >= -np.log1p(-c_lo * (1 - np.exp(-3.0))) - 1e-12:
                 continue        # the cell touches the edge of the support: skip
-            cc, dd = np.meshgrid(c_lo + sub, edges[b] + sub, indexing="ij")
+            cc, dd = np.meshgrid(c_lo + sub, e_edges[b] + 2 * sub, indexing="ij")
             pts = np.column_stack([np.full(cc.size, fixed[0]), np.full(cc.size, fixed[1]),
                                    dd.ravel(), cc.ravel()])
             dens = np.exp(coords(pts) - space.priors[0].logpdf(fixed[:1])
                           - (space.priors[1].logpdf(np.exp(fixed[1:])) + fixed[1]))
-            expect = n * dens.mean() * 0.01
+            expect = n * dens.mean() * 0.1 * 0.2
             assert abs(counts[a, b] - expect) < 5 * np.sqrt(expect) + 0.01 * expect
             checked += 1
     assert checked >= 20
