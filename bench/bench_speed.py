@@ -73,6 +73,10 @@ def _time(fn, n, clock=time.perf_counter):
     return min(best) * 1e3
 
 
+def _cpu(fn, n):
+    return _time(fn, n, time.process_time)
+
+
 def _quiet(msg):
     pass
 
@@ -188,7 +192,8 @@ class _Fixed:
 
 
 def stage_times(prep, x, n):
-    """{stage: ms per call} summed over the channels of every epoch."""
+    """{stage: CPU ms per call} summed over the channels of every epoch (CPU time: on a
+    shared machine the wall time of a stage mostly measures the other processes)."""
     from teffmc.model import grid_nuisance
 
     post = prep.log_post
@@ -199,21 +204,20 @@ def stage_times(prep, x, n):
         p = prep.space.epoch_values(x, label)
         for ch in chans:
             nuis = grid_nuisance(ch.grid, p)
-            out["interpolation"] += _time(lambda ch=ch, p=p, nuis=nuis: ch.grid.interpolate_log(
+            out["interpolation"] += _cpu(lambda ch=ch, p=p, nuis=nuis: ch.grid.interpolate_log(
                 p["teff"], p["logg"], p["mh"], nuis), n)
-            out["extinction"] += _time(lambda ch=ch, p=p: ch.dust.log10_extinction(p), n)
+            out["extinction"] += _cpu(lambda ch=ch, p=p: ch.dust.log10_extinction(p), n)
             if ch.dust.veil is not None:
-                out["veil"] += _time(lambda ch=ch, p=p: ch.dust.veil_factor(p), n)
-            out["forward model total"] += _time(lambda ch=ch, p=p: ch.predict(p), n)
+                out["veil"] += _cpu(lambda ch=ch, p=p: ch.dust.veil_factor(p), n)
+            out["forward model total"] += _cpu(lambda ch=ch, p=p: ch.predict(p), n)
             model = ch.predict(p)
             if ch.kind == "photometry":
                 from teffmc.model import observed_flux
 
                 flux = observed_flux(ch.grid, ch.dust, p)
-                out["photometry (band sums)"] += _time(lambda ch=ch, f=flux: ch.bandset.mags(f),
-                                                       n)
+                out["photometry (band sums)"] += _cpu(lambda ch=ch, f=flux: ch.bandset.mags(f), n)
             fixed = _Fixed(ch, model)
-            out["likelihood (calibration, mismatch filter)"] += _time(
+            out["likelihood (calibration, mismatch filter)"] += _cpu(
                 lambda f=fixed, p=p: post.channel_loglike(f, p), n)
     return out
 
@@ -244,7 +248,7 @@ def call_cost(name, prep, n_rep, lnl):
           f"{nw / ms * 1e3:,.0f} evaluations/s (wall); CPU time {cpu:.3f} ms = "
           f"{nw / cpu * 1e3:,.0f} evaluations per CPU second")
     for stage, t in stage_times(prep, x, n_rep).items():
-        print(f"    {stage:44s} {t:8.3f} ms")
+        print(f"    {stage:44s} {t:8.3f} ms CPU")
     print(f"    {'LSF convolution + resampling':44s} per run, not per call: "
           f"{lsf_once(prep):.2f} s once")
     lnl[name] = (x, prep.log_post(x))
