@@ -19,6 +19,7 @@ import numpy as np
 
 from .dust import ExtinctionTable, Veil
 from .constants import C_KMS
+from .likelihood.mismatch import _steps as _kernel_steps
 
 __all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "observed_flux", "band_pixels", "SpectrumChannel",
            "PhotometryChannel"]
@@ -169,6 +170,7 @@ class SpectrumChannel:
         # model-mismatch term (teffmc.likelihood.mismatch) and its kernel axis [km/s]
         self.mismatch = mismatch
         self.velocity = C_KMS * np.log(self.wave)
+        self.kernel_steps = _kernel_steps(self.velocity)
         self.calibration_order = int(calibration_order)
         self.calibration_sigma = float(calibration_sigma)
         if self.calibration_order >= 0:

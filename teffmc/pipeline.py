@@ -36,37 +36,77 @@ CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synth
                 "for publication-grade temperatures import a validated model grid.")
 
 
-class LogCoordinates:
-    """The sampler's coordinates: ln x for every parameter with a log-uniform prior.
+class SamplerCoordinates:
+    """The sampler's coordinates u; draws, summaries and files stay in x.
 
-    A log-uniform prior spanning decades is flat in ln x but piles up at the low end in
-    x; the ensemble moves (differences and stretches of walker positions) then mix
-    slowly -- measured on the demo with a correlated mismatch term: tau of
-    ``mismatch_scale`` 478 steps sampled in x. The density in u = ln x carries the
-    Jacobian, log p(u) = log p(x(u)) + sum ln x; draws are returned in x.
+    * ln x for every parameter with a log-uniform prior: such a prior spanning decades
+      is flat in ln x but piles up at the low end in x, and the ensemble moves
+      (differences and stretches of walker positions) then mix slowly -- measured on the
+      demo with a correlated mismatch term: tau of ``mismatch_scale`` 478 steps sampled
+      in x, ~70-100 in ln x.
+    * the veil's covering fraction c and optical depth tau, when both are free in an
+      epoch, as (c, e) with e = -ln(1 - d) and d = c (1 - exp(-tau)) the fraction of
+      the star's light the veil removes at 0.55 micron (before scattering): the data
+      measure e almost directly, while c and tau trade along the curved ridge
+      c (1 - e^-tau) = d, which the ensemble's straight-line moves cross slowly (tau
+      ~300 steps in the issue). In e the dimming is a magnitude-like quantity, so its
+      trade with the angular diameter (2 ln theta - e ~ const for grey grains) is a
+      straight line too. d = 1 - e^-e, tau = -ln(1 - d / c), 0 <= d < c.
+
+    The density in u carries the Jacobian, log p(u) = log p(x(u)) + log |dx/du| with
+    log |dx/du| = sum ln x (log coordinates) + sum [-e - ln(c - d)] (veil pairs), so
+    the priors on x are unchanged (tests/test_coordinates.py).
     """
 
     def __init__(self, space, log_post):
         self.log_post = log_post
         self.space = space
         self.log = np.array([p.kind == "loguniform" for p in space.priors], bool)
+        self.pairs = []
+        names = list(space.names)
+        for k, name in enumerate(names):
+            base, at, label = name.partition("@")
+            cover = "veil_cover" + at + label
+            if base == "veil_tau" and cover in names:
+                c = names.index(cover)
+                if not (self.log[k] or self.log[c]):
+                    self.pairs.append((k, c))
+        self.pairs = np.array(self.pairs, int).reshape(-1, 2)
 
     def to_x(self, u):
         x = np.array(u, float, copy=True)
         x[..., self.log] = np.exp(x[..., self.log])
+        t, c = self.pairs[:, 0], self.pairs[:, 1]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            ratio = -np.expm1(-x[..., t]) / x[..., c]          # d / c
+            inside = (ratio >= 0) & (ratio < 1)
+            x[..., t] = np.where(inside, -np.log1p(-np.where(inside, ratio, 0.0)), np.nan)
         return x
 
     def to_u(self, x):
         u = np.array(x, float, copy=True)
         u[..., self.log] = np.log(u[..., self.log])
+        t, c = self.pairs[:, 0], self.pairs[:, 1]
+        u[..., t] = -np.log1p(u[..., c] * np.expm1(-u[..., t]))   # e = -ln(1 - d)
         return u
 
     def jacobian(self, u):
-        return np.sum(np.asarray(u)[..., self.log], axis=-1)
+        u = np.asarray(u)
+        t, c = self.pairs[:, 0], self.pairs[:, 1]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            d = -np.expm1(-u[..., t])
+            pair = -np.sum(u[..., t] + np.log(u[..., c] - d), axis=-1)
+        return np.sum(u[..., self.log], axis=-1) + pair
 
     def __call__(self, u):
         u = np.atleast_2d(np.asarray(u, float))
-        return self.log_post(self.to_x(u)) + self.jacobian(u)
+        x = self.to_x(u)
+        ok = np.all(np.isfinite(x), axis=1)
+        out = np.full(u.shape[0], -np.inf)
+        if ok.any():
+            out[ok] = self.log_post(x[ok]) + self.jacobian(u[ok])
+        out[np.isnan(out)] = -np.inf
+        return out
 
     def sample_prior(self, rng, n):
         return self.to_u(self.space.sample_prior(rng, n))
@@ -75,6 +115,10 @@ class LogCoordinates:
         """A :class:`~teffmc.sample.SampleResult` in u turned into one in x."""
         return replace(result, chain=self.to_x(result.chain),
                        log_prob=result.log_prob - self.jacobian(result.chain))
+
+
+#: the former name (log coordinates only)
+LogCoordinates = SamplerCoordinates
 
 
 def hole_cautions(space, grid):
@@ -100,19 +144,23 @@ def hole_cautions(space, grid):
 
 
 def sample_posterior(prep, checkpoint, *, resume, quiet, log):
-    """Optimised start, then emcee until converged or out of steps (in log coordinates
-    for log-uniform priors, see :class:`LogCoordinates`)."""
-    from .sample import find_start, initial_ball, run_sampler
+    """Optimised start, then emcee until converged or out of steps (in the coordinates
+    of :class:`SamplerCoordinates`)."""
+    from .sample import find_start, run_sampler
+    from .sampling_start import laplace_ball
 
     s = prep.config.sampler
-    coords = LogCoordinates(prep.space, prep.log_post)
+    coords = SamplerCoordinates(prep.space, prep.log_post)
     rng = np.random.default_rng(s.seed)
     x0 = None
     if not resume:
         x0 = find_start(coords, coords.sample_prior, n_starts=s.n_starts, rng=rng)
         log("start: " + ", ".join(f"{n}={v:.4g}" for n, v in zip(prep.space.names,
                                                                  coords.to_x(x0))))
-        x0 = initial_ball(x0, rng, s.n_walkers, coords, scale=1e-3)
+        # walkers from the Laplace approximation at the optimum: a start in the typical
+        # set (tau before/after in DEVELOPERS.md, bench/bench_speed.py)
+        x0 = laplace_ball(coords, x0, rng, s.n_walkers,
+                          1e-3 * np.where(x0 != 0, np.abs(x0), 1.0))
     result = run_sampler(coords, x0, names=prep.space.names, n_walkers=s.n_walkers,
                          seed=s.seed, max_steps=s.max_steps, min_steps=s.min_steps,
                          check_every=s.check_every, checkpoint=checkpoint, resume=resume,

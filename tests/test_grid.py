@@ -44,6 +44,38 @@ def test_multilinear_is_linear_in_each_axis(rng):
     np.testing.assert_allclose(got, want, rtol=0, atol=2e-6)
 
 
+def test_dense_and_sparse_products_agree(rng, monkeypatch):
+    """The dense product over the cells the walkers touch (clustered walkers) and the
+    sparse one (spread walkers) give the same multilinear interpolation, also with a
+    nuisance axis, and equal the 8-corner sum written out (common practice, no source)."""
+    import teffmc.photosphere.grid as grid_mod
+    from teffmc.photosphere.nuisance import NuisanceAxis
+
+    g = _toy_grid(rng)
+    shape = g.log_flux.shape
+    axis = NuisanceAxis(name="tio", step=np.log(2.0), minus=g.log_flux - 0.1 * rng.random(shape),
+                        plus=g.log_flux + 0.2 * rng.random(shape), low=0.5, high=2.0, note="")
+    g = Grid(g.teff, g.logg, g.mh, g.wave, g.log_flux, name="toy", nuisance=(axis,))
+    pts = rng.uniform([3000, 0, -0.5], [4000, 1, 0], (30, 3))
+    x = rng.uniform(-0.5, 0.5, 30)
+    dense = g.interpolate_log(*pts.T, {"tio": x})
+    monkeypatch.setattr(grid_mod, "_DENSE_MODELS", 0)
+    sparse = g.interpolate_log(*pts.T, {"tio": x})
+    np.testing.assert_allclose(dense, sparse, rtol=0, atol=1e-12)
+    lf = g.log_flux.astype(float)
+    d1 = (axis.plus - axis.minus) / (2 * axis.step)
+    d2 = (axis.plus - 2 * g.log_flux + axis.minus) / axis.step**2
+    for k, (t, lg, m) in enumerate(pts):
+        i = min(np.searchsorted(g.teff, t, "right") - 1, 1)
+        wi, wj, wk = (t - g.teff[i]) / 500.0, lg, (m + 0.5) / 0.5
+        want = 0.0
+        for a, b, c in np.ndindex(2, 2, 2):
+            w = (wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk)
+            node = (i + a, b, c)
+            want = want + w * (lf[node] + x[k] * d1[node] + 0.5 * x[k] ** 2 * d2[node])
+        np.testing.assert_allclose(dense[k], want, rtol=0, atol=1e-9)
+
+
 def test_off_grid_error_carries_point_and_bounds(rng):
     g = _toy_grid(rng)
     with pytest.raises(OffGridError) as e:
