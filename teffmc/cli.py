@@ -12,11 +12,12 @@ import shlex
 import signal
 import sys
 import threading
+import warnings
 from contextlib import contextmanager, nullcontext
 from pathlib import Path
 
 from . import __version__
-from .errors import ClusterError, TeffmcError
+from .errors import ClusterError, ConvergenceWarning, TeffmcError
 
 __all__ = ["main"]
 
@@ -230,8 +231,22 @@ def build_parser():
     return p
 
 
+def _one_line_warnings(message, category, filename, lineno, file=None, line=None):
+    """teffmc's own warnings (e.g. not converged) as one plain line, without the source
+    line a Python warning shows; others as Python shows them."""
+    if issubclass(category, ConvergenceWarning):
+        print(f"teffmc: warning: {' '.join(str(message).split())}",
+              file=file if file is not None else sys.stderr)
+    else:
+        _show_warning(message, category, filename, lineno, file, line)
+
+
+_show_warning = warnings.showwarning
+
+
 def main(argv=None):
     args = build_parser().parse_args(argv)
+    old_show, warnings.showwarning = warnings.showwarning, _one_line_warnings
     try:
         with _sigterm_as_interrupt() if args.command in ("fit", "batch") else nullcontext():
             return args.func(args)
@@ -245,6 +260,8 @@ def main(argv=None):
     except KeyboardInterrupt:
         print(f"teffmc: {_interrupted(args)}", file=sys.stderr)
         return 130
+    finally:
+        warnings.showwarning = old_show
 
 
 if __name__ == "__main__":

@@ -177,6 +177,35 @@ def _rhat_check(chain, tau, n, names, rhat_max, text):
     return bool(np.all(np.nan_to_num(r, nan=1.0) < rhat_max)), text
 
 
+def _initial_state(log_prob, x0, checkpoint, resume, names, n_walkers, seed, ball_scale,
+                   say):
+    """(seed, emcee state, backend, resumed?) from the checkpoint or a fresh start."""
+    saved = resume_state(checkpoint, names, n_walkers, seed) if resume and checkpoint else None
+    if saved is not None:
+        state = emcee.State(saved["chain"][-1], log_prob=saved["log_prob"][-1],
+                            random_state=saved["random_state"])
+        backend = memory_backend(saved)
+        say(f"resuming {checkpoint} at step {backend.iteration}")
+        return saved["seed"], state, backend, True
+    if resume and checkpoint:
+        say(f"no steps in {checkpoint} to resume; starting afresh")
+    if seed is None:
+        seed = int(np.random.SeedSequence().generate_state(1, np.uint32)[0])
+    state = _fresh_state(log_prob, x0, n_walkers, len(names), seed, ball_scale)
+    return seed, state, emcee.backends.Backend(), False
+
+
+def _check(sampler, tau_at, n, check_every, names, min_steps, tau_factor, tau_rtol, rhat_max):
+    """The stop rule at step n: (tau, converged, text)."""
+    prev = ((n - 1) // check_every) * check_every
+    tau = tau_at(n)
+    converged, text = stop_rule(n, tau, tau_at(prev), names=names, min_steps=min_steps,
+                                tau_factor=tau_factor, tau_rtol=tau_rtol, prev_step=prev)
+    if converged and rhat_max is not None:
+        converged, text = _rhat_check(sampler.get_chain(), tau, n, names, rhat_max, text)
+    return tau, converged, text
+
+
 def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000,
                 min_steps=1000, check_every=500, tau_factor=TAU_FACTOR, tau_rtol=TAU_RTOL,
                 moves=None, checkpoint=None, resume=False, progress=True, log=None, ball_scale=1e-3,
@@ -244,24 +273,13 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
     if seed is not None and (not isinstance(seed, (int, np.integer)) or seed < 0):
         raise ConfigError(f"should be a non-negative integer but got {seed!r}", key="seed")
     say = log if log is not None else (lambda line: None)
-    saved = resume_state(checkpoint, names, n_walkers, seed) if resume and checkpoint else None
-    if saved is not None:
-        seed, backend = saved["seed"], memory_backend(saved)
-        state = emcee.State(saved["chain"][-1], log_prob=saved["log_prob"][-1],
-                            random_state=saved["random_state"])
-        say(f"resuming {checkpoint} at step {backend.iteration}")
-    else:
-        if resume and checkpoint:
-            say(f"no steps in {checkpoint} to resume; starting afresh")
-        if seed is None:
-            seed = int(np.random.SeedSequence().generate_state(1, np.uint32)[0])
-        state = _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale)
-        backend = emcee.backends.Backend()
+    seed, state, backend, resumed = _initial_state(log_prob, x0, checkpoint, resume, names,
+                                                   n_walkers, seed, ball_scale, say)
     interrupt = DeferredInterrupt(log_prob)  # Ctrl-C: stop between steps, no emcee traceback
     sampler = emcee.EnsembleSampler(n_walkers, ndim, interrupt, vectorize=True,
                                     moves=default_moves() if moves is None else moves,
                                     backend=backend)
-    n = n_saved = backend.iteration if saved is not None else 0
+    n = n_saved = backend.iteration if resumed else 0
     taus = {}
 
     def tau_at(m):  # tau from the first m steps; nan when there are too few
@@ -275,16 +293,9 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
     try:
         while True:
             if n > 0 and (n % check_every == 0 or n >= max_steps):
-                prev = ((n - 1) // check_every) * check_every
-                tau = tau_at(n)
-                converged, text = stop_rule(n, tau, tau_at(prev), names=names,
-                                             min_steps=min_steps, tau_factor=tau_factor,
-                                             tau_rtol=tau_rtol, prev_step=prev)
-                if converged and rhat_max is not None:
-                    converged, text = _rhat_check(sampler.get_chain(), tau, n, names, rhat_max,
-                                                  text)
-                acc = float(np.mean(backend.accepted / n))
-                say(f"{text}; acceptance {acc:.2f}")
+                tau, converged, text = _check(sampler, tau_at, n, check_every, names,
+                                              min_steps, tau_factor, tau_rtol, rhat_max)
+                say(f"{text}; acceptance {float(np.mean(backend.accepted / n)):.2f}")
                 if converged or n >= max_steps:
                     break
             target = min(max_steps, (n // check_every + 1) * check_every)

@@ -105,3 +105,18 @@ def test_other_config_errors(tmp_path, capsys, body, needle):
     (tmp_path / "x").write_text("")
     rc, err = _run(capsys, path, tmp_path)
     _assert_one_line_exit2(rc, err, "bad.toml", needle, tmp_path=tmp_path)
+
+
+def test_not_converged_is_one_plain_warning_line(tmp_path, capsys):
+    # a run stopped at max_steps says so in one line on stderr (no Python source line)
+    import warnings
+
+    from teffmc.cli import _one_line_warnings
+    from teffmc.errors import ConvergenceWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("always")
+        warnings.showwarning = _one_line_warnings
+        warnings.warn("not converged at max_steps = 200: tau\n 27", ConvergenceWarning)
+    err = capsys.readouterr().err
+    assert err == "teffmc: warning: not converged at max_steps = 200: tau 27\n"
