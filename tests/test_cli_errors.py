@@ -117,6 +117,7 @@ def test_not_converged_is_one_plain_warning_line(tmp_path, capsys):
     with warnings.catch_warnings():
         warnings.simplefilter("always")
         warnings.showwarning = _one_line_warnings
-        warnings.warn("not converged at max_steps = 200: tau\n 27", ConvergenceWarning)
+        warnings.warn("not converged at max_steps = 200: tau\n 27", ConvergenceWarning,
+                      stacklevel=1)
     err = capsys.readouterr().err
     assert err == "teffmc: warning: not converged at max_steps = 200: tau 27\n"
