@@ -38,29 +38,40 @@ def _calibrated(ch, p, model):
     return model * (1.0 + calibration_mean(ch.data, var, model, ch.basis, sig))
 
 
+#: draws x points evaluated at once (peak memory for long spectra: ~8 bytes each, x a few)
+BLOCK_VALUES = 4_000_000
+
+
+def _stats(ch, p, rng):
+    """Per-draw chi^2, mean z^2, replicated chi^2 and rms fractional residual."""
+    model = _calibrated(ch, p, ch.predict(p))
+    err = ch.err[None, :]
+    if ch.kind == "spectrum":
+        err = p["jitter"][:, None] * err
+    z2 = ((ch.data[None, :] - model) / err) ** 2
+    rep = (rng.standard_normal(z2.shape) ** 2).sum(axis=1)
+    frac = np.sqrt(np.mean(((ch.data[None, :] - model) / model) ** 2, axis=1))
+    return z2.sum(axis=1), z2.mean(axis=1), rep, frac
+
+
 def goodness_of_fit(prep, draws, rng):
     """``{"epoch.channel": {...}}`` goodness-of-fit numbers on ``draws`` (n, ndim)."""
     out = {}
     for label, chans in prep.channels.items():
-        p = prep.space.epoch_values(draws, label)
         for ch in chans:
-            model = _calibrated(ch, p, ch.predict(p))
-            err = ch.err[None, :]
-            if ch.kind == "spectrum":
-                err = p["jitter"][:, None] * err
-            z2 = ((ch.data[None, :] - model) / err) ** 2
-            chi2 = z2.sum(axis=1)
-            rep = rng.standard_normal(z2.shape) ** 2
             n = ch.n_points
+            step = max(1, BLOCK_VALUES // n)
+            parts = [_stats(ch, prep.space.epoch_values(draws[i:i + step], label), rng)
+                     for i in range(0, draws.shape[0], step)]
+            chi2, mz2, rep, frac = (np.concatenate(a) for a in zip(*parts))
             entry = {
                 "kind": ch.kind, "n_points": int(n),
                 "chi2": float(np.median(chi2)), "chi2_nu": float(np.median(chi2) / n),
-                "rms_sigma": float(np.sqrt(np.median(z2.mean(axis=1)))),
-                "ppc_p": float(np.mean(rep.sum(axis=1) >= chi2)),
+                "rms_sigma": float(np.sqrt(np.median(mz2))),
+                "ppc_p": float(np.mean(rep >= chi2)),
             }
             if ch.kind == "spectrum":
-                frac = (ch.data[None, :] - model) / model
-                entry["rms_frac"] = float(np.median(np.sqrt(np.mean(frac**2, axis=1))))
+                entry["rms_frac"] = float(np.median(frac))
                 entry["mismatch"] = getattr(ch, "mismatch", "none")
             out[f"{label}.{ch.name}"] = entry
     return out

@@ -14,7 +14,7 @@ from . import posterior as post_mod
 from .budget import dimming_budget
 from .derived import bolometric
 from .goodness import cautions as gof_cautions
-from .goodness import goodness_of_fit
+from .goodness import BLOCK_VALUES, goodness_of_fit
 from .likelihood import pixel_variance
 from .model import Dust, band_pixels, observed_flux
 from .priors import Prior
@@ -183,8 +183,10 @@ class VBand:
         return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
 
 
-def _chunked(fn, flat, dtype=None):
-    parts = [fn(flat[i:i + CHUNK]) for i in range(0, flat.shape[0], CHUNK)]
+def _chunked(fn, flat, dtype=None, n_points=1):
+    """fn on blocks of draws (at most CHUNK, and ~BLOCK_VALUES draws x points)."""
+    step = max(1, min(CHUNK, BLOCK_VALUES // max(n_points, 1)))
+    parts = [fn(flat[i:i + step]) for i in range(0, flat.shape[0], step)]
     if dtype is not None:  # each part converted as it comes (peak memory)
         parts = [{k: v.astype(dtype) for k, v in p.items()} if isinstance(p, dict)
                  else p.astype(dtype) for p in parts]
@@ -316,7 +318,8 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
     # n_draws x n_pixels, by far the largest part of posterior.nc
     every = max(1, math.ceil(n_draws * n_walkers / loo_draws(prep)))
     loo_chain = result.chain[::every]
-    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim), np.float32)
+    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim), np.float32,
+                         n_points=sum(ch.n_points for cs in prep.channels.values() for ch in cs))
     pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1)
                  for k, v in pointwise.items()}
     sub = result.chain[-min(n_draws, 4):]
