@@ -84,6 +84,28 @@ def test_equals_dense_gaussian_per_walker_variance(problem):
         assert got[w] == pytest.approx(expected, abs=1e-9)
 
 
+@pytest.mark.parametrize("n", [7, 29])
+def test_fused_pass_equals_dense_gaussian(n):
+    """marginal_loglike_fast (one compiled pass, log det S from products of 8 pixels) gives
+    the dense multivariate normal's value, with variances of tiny flux units."""
+    from teffmc.observe.calibration import marginal_loglike_fast
+
+    rng = np.random.default_rng(n)
+    wave = np.linspace(5000.0, 7000.0, n)
+    model = 1e-12 * rng.uniform(0.8, 1.2, size=(3, n))
+    var = 1e-24 * rng.uniform(0.002, 0.01, size=(3, n))
+    data = model[0] * (1.0 + 0.05 - 0.03 * np.linspace(-1, 1, n)) + 1e-12 * rng.normal(0, 0.05, n)
+    design, sigma = legendre_design(wave, 2), np.array([0.2, 0.1, 0.05])
+    got = marginal_loglike_fast(data, var, model, design.T, sigma)
+    for w in range(3):
+        B = model[w][:, None] * design
+        cov = np.diag(var[w]) + B @ np.diag(sigma**2) @ B.T
+        expected = stats.multivariate_normal(mean=model[w], cov=cov).logpdf(data)
+        assert got[w] == pytest.approx(expected, rel=1e-10, abs=1e-8)
+    np.testing.assert_allclose(got, marginal_loglike(data, var, model, design, sigma),
+                               rtol=1e-12, atol=1e-8)
+
+
 def test_posterior_recovers_known_polynomial():
     wave = np.linspace(4000.0, 9000.0, 2000)
     design = legendre_design(wave, 2)

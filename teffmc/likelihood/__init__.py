@@ -99,11 +99,11 @@ class Posterior:
                 return student_t_loglike(ch.data, var, model, ch.student_nu)
             return student_t_pointwise(ch.data, var, model, ch.student_nu)
         if ch.basis is not None:
-            from ..observe.calibration import marginal_loglike, calibration_mean
+            from ..observe.calibration import calibration_mean, marginal_loglike_fast
 
             if not pointwise:
-                return marginal_loglike(ch.data, var, model, ch.basis,
-                                        np.full(ch.basis.shape[0], ch.calibration_sigma))
+                return marginal_loglike_fast(ch.data, var, model, ch.basis,
+                                             np.full(ch.basis.shape[0], ch.calibration_sigma))
             # Pointwise terms condition on the posterior-mean polynomial of each draw
             # (the marginal likelihood does not split into independent pixels).
             poly = calibration_mean(ch.data, var, model, ch.basis,

@@ -32,6 +32,7 @@ cost is O(n_walkers * n * K^2) (two matrix products) plus K x K solves.
 
 from typing import NamedTuple
 
+import numba
 import numpy as np
 from scipy.special import gammaln
 
@@ -42,6 +43,7 @@ __all__ = [
     "calibration_mean",
     "legendre_design",
     "marginal_loglike",
+    "marginal_loglike_fast",
     "posterior_calibration",
     "student_t_loglike",
     "student_t_pointwise",
@@ -115,6 +117,69 @@ def _normal_equations(data, var, model, design, prior_sigma):
     chi2 = np.sum(r * r * iv, axis=-1)
     logdet_s = np.sum(np.log(s2), axis=-1)
     return M, b, chi2, logdet_s, np.sum(np.log(lam)), n, A
+
+
+@numba.njit(cache=True, fastmath=True, error_model="numpy")
+def _normal_sums(d, var, m, A):  # pragma: no cover - compiled
+    """Per walker: G = B^T S^-1 B (upper triangle), b = B^T S^-1 r, chi2 = r^T S^-1 r and
+    log det S, in one pass over the pixels (no (walkers x pixels) temporaries).
+
+    var and m (nw, n), A (n, K). log det S is summed as logs of products of 8 variances
+    relative to the walker's first (each ratio far from over/underflow).
+    """
+    nw, n = m.shape
+    k = A.shape[1]
+    ng = k * (k + 1) // 2
+    G = np.zeros((nw, ng))
+    b = np.zeros((nw, k))
+    chi2 = np.zeros(nw)
+    logdet = np.zeros(nw)
+    for w in range(nw):
+        v0 = var[w, 0]
+        ld = n * np.log(v0)
+        prod = 1.0
+        c2 = 0.0
+        for i in range(n):
+            iv = 1.0 / var[w, i]
+            mi = m[w, i]
+            r = d[i] - mi
+            c2 += r * r * iv
+            prod *= var[w, i] / v0
+            if i % 8 == 7:
+                ld += np.log(prod)
+                prod = 1.0
+            mw = mi * iv
+            g = 0
+            for p in range(k):
+                ap = A[i, p]
+                b[w, p] += mw * r * ap
+                for q in range(p, k):
+                    G[w, g] += mw * mi * ap * A[i, q]
+                    g += 1
+        chi2[w] = c2
+        logdet[w] = ld + np.log(prod)
+    return G, b, chi2, logdet
+
+
+def marginal_loglike_fast(data, var, model, design, prior_sigma):
+    """:func:`marginal_loglike` for var and model of shape (n_walkers, n_pix) and a
+    (K, n_pix) or (n_pix, K) design, by one compiled pass (same value to rounding,
+    tests/test_observe_calibration.py)."""
+    m = np.ascontiguousarray(model, dtype=float)
+    v = np.ascontiguousarray(np.broadcast_to(np.asarray(var, dtype=float), m.shape))
+    A = np.ascontiguousarray(_design(design, m.shape[-1]))
+    k = A.shape[1]
+    lam = _prior_var(prior_sigma, k)
+    G, b, chi2, logdet_s = _normal_sums(np.asarray(data, dtype=float), v, m, A)
+    M = np.zeros((m.shape[0], k, k))
+    for g, (i, j) in enumerate(zip(*np.triu_indices(k))):
+        M[:, i, j] = M[:, j, i] = G[:, g]
+    M += np.diag(1.0 / lam)
+    L = np.linalg.cholesky(M)
+    y = np.linalg.solve(L, b[..., None])[..., 0]
+    logdet_m = 2.0 * np.sum(np.log(np.diagonal(L, axis1=-2, axis2=-1)), axis=-1)
+    return -0.5 * (chi2 - np.sum(y * y, axis=-1) + logdet_s + np.sum(np.log(lam)) + logdet_m
+                   + m.shape[-1] * _LOG_2PI)
 
 
 def marginal_loglike(data, var, model, design, prior_sigma):
