@@ -559,8 +559,9 @@ class _Engine:
         if self.address is None:
             env = {k: "1" for k in BLAS_ENV}
             env[_PARENT_ENV] = str(os.getpid())
-            # worker-saturation 1.0: a worker holds only the star it fits, so a dying
-            # worker takes no innocent star down with it (see ALLOWED_FAILURES)
+            # worker-saturation 1.0: with more stars than twice the threads, Dask keeps
+            # them queued on the scheduler and a worker holds only the star it fits, so a
+            # dying worker takes no innocent star down with it (see ALLOWED_FAILURES)
             with dask.config.set({"distributed.scheduler.worker-saturation": 1.0,
                                   "distributed.scheduler.allowed-failures": ALLOWED_FAILURES}):
                 self.cluster = LocalCluster(
