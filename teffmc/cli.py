@@ -1,7 +1,8 @@
 """Command line: ``teffmc demo | fit | batch | compare | report | grid``.
 
 Exit codes: 0 success; 2 bad input (one line naming file, key or column, and the
-value; no traceback); 1 internal error, or for ``batch``: at least one star failed;
+value; no traceback); 1 internal error, or for ``batch``: at least one star failed or
+the Dask cluster was lost (:class:`~teffmc.errors.ClusterError`);
 130 interrupted by Ctrl-C or, for ``fit`` and ``batch``, SIGTERM (one line saying how
 to resume).
 """
@@ -15,7 +16,7 @@ from contextlib import contextmanager, nullcontext
 from pathlib import Path
 
 from . import __version__
-from .errors import TeffmcError
+from .errors import ClusterError, TeffmcError
 
 __all__ = ["main"]
 
@@ -37,7 +38,7 @@ def _cmd_batch(args):
     for lst in args.list or []:
         configs += read_config_list(lst)
     table = fit_many(configs, args.out, workers=args.workers, redo=args.redo,
-                     quiet=args.quiet)
+                     quiet=args.quiet, scheduler=args.scheduler)
     return 1 if any(s == "failed" for s in table["status"]) else 0
 
 
@@ -160,8 +161,10 @@ def build_parser():
 
     b = sub.add_parser(
         "batch", help="fit many stars, one config each, into OUT/<config stem>/",
-        description="Fit many stars (one config file each) in a pool of processes, each "
-        "star into OUT/<config file stem>/, with one table OUT/batch.ecsv (a row per star: "
+        description="Fit many stars (one config file each) as tasks on a Dask cluster (an "
+        "embedded one of --workers processes, or a running one with --scheduler), each "
+        "star into OUT/<config file stem>/, with one table OUT/batch.ecsv and the same as "
+        "OUT/batch.parquet (a row per star: "
         "status, reason, wall time, steps, median and 16th/84th percentiles of every "
         "parameter) and the progress lines in OUT/batch.log. Stars whose folder already "
         "holds a finished run are skipped, so re-running the same command resumes an "
@@ -169,7 +172,8 @@ def build_parser():
         epilog="exit status: 0 every star has a finished run (rows with status "
         "not_converged are runs that did not converge: see their caution); 1 at least one "
         "star failed (status failed, the reason in the table and the log; the other stars "
-        "were fitted); 2 bad batch input (no configs, two configs with the same file stem, "
+        "were fitted), or the Dask cluster was lost (re-run the same command to resume); "
+        "2 bad batch input (no configs, two configs with the same file stem, "
         "unreadable --list file), nothing done; 130 interrupted (re-run the same command to "
         "resume).")
     b.add_argument("configs", nargs="*", metavar="CONFIG", help="TOML config files")
@@ -177,9 +181,12 @@ def build_parser():
                    help="text file with one config path a line (relative paths: from the "
                    "file's folder); may be repeated")
     b.add_argument("--out", required=True, help="folder for the runs and batch.ecsv")
-    b.add_argument("--workers", type=int, default=1,
-                   help="stars fitted at the same time, one process and one BLAS thread "
-                   "each (default: %(default)s)")
+    b.add_argument("--workers", type=int, default=None,
+                   help="stars fitted at the same time on this machine: processes of an "
+                   "embedded Dask cluster, one thread and one BLAS thread each (default: 1)")
+    b.add_argument("--scheduler", metavar="ADDRESS",
+                   help="fit the stars on the workers of a running Dask scheduler (e.g. "
+                   "tcp://host:8786) instead; every worker must see --out")
     b.add_argument("--redo", action="store_true",
                    help="fit again stars whose folder holds a finished run")
     b.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
@@ -228,6 +235,9 @@ def main(argv=None):
     try:
         with _sigterm_as_interrupt() if args.command in ("fit", "batch") else nullcontext():
             return args.func(args)
+    except ClusterError as exc:  # not the input's fault: exit 1
+        print(f"teffmc: error: {' '.join(str(exc).split())}", file=sys.stderr)
+        return 1
     except TeffmcError as exc:
         msg = " ".join(str(exc).split())
         print(f"teffmc: error: {msg}", file=sys.stderr)

@@ -5,7 +5,6 @@ Every problem raises :class:`~teffmc.errors.ConfigError` naming the file, the ke
 resolved against the folder of the config file.
 """
 
-import math
 import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -17,6 +16,7 @@ from .dust.materials import MATERIALS
 from .errors import ConfigError
 from .parameters import DEFAULT_SHARED
 from .priors import PRIOR_KINDS, Prior
+from .tomlread import TableReader as _Reader
 
 __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "load_config",
            "parse_config"]
@@ -79,7 +79,6 @@ class SamplerSpec:
     check_every: int = 500
     seed: int = 1
     n_starts: int = 16
-    checkpoint_every: int = 100
     evidence: bool = False
     nlive: int = 200
 
@@ -106,68 +105,6 @@ class Config:
             return [(None, self)]
         return [(name, replace(self, model=replace(self.model, **over), hypotheses=()))
                 for name, over in self.hypotheses]
-
-
-class _Reader:
-    """Walks a TOML table, tracking the dotted key for error messages."""
-
-    def __init__(self, file, table, prefix=""):
-        self.file, self.table, self.prefix = file, table, prefix
-        self.used = set()
-
-    def key(self, k):
-        return f"{self.prefix}{k}"
-
-    def err(self, k, msg, value=None):
-        return ConfigError(msg, file=self.file, key=self.key(k), value=value)
-
-    def get(self, k, types, default=None, *, required=False):
-        self.used.add(k)
-        if k not in self.table:
-            if required:
-                raise self.err(k, "is required but missing")
-            return default
-        v = self.table[k]
-        if types is float and isinstance(v, int) and not isinstance(v, bool):
-            v = float(v)
-        if not isinstance(v, types) or (isinstance(v, bool) and types in (int, float)):
-            want = (types.__name__ if isinstance(types, type)
-                    else "/".join(t.__name__ for t in types))
-            raise self.err(k, f"should be {want} but got {v!r}", v)
-        if isinstance(v, float) and not math.isfinite(v):
-            raise self.err(k, f"should be finite but got {v!r}", v)
-        return v
-
-    def positive(self, k, default=None, *, required=False):
-        v = self.get(k, float, default, required=required)
-        if v is not None and v <= 0:
-            raise self.err(k, f"should be > 0 but got {v!r}", v)
-        return v
-
-    def sub(self, k, *, required=False):
-        t = self.get(k, dict, None, required=required)
-        return None if t is None else _Reader(self.file, t, f"{self.key(k)}.")
-
-    def choice(self, k, allowed, default):
-        v = self.get(k, str, default)
-        if v not in allowed:
-            raise self.err(k, f"should be one of {', '.join(allowed)} but got {v!r}", v)
-        return v
-
-    def done(self):
-        extra = sorted(set(self.table) - self.used)
-        if extra:
-            raise self.err(extra[0], "unknown key", extra[0])
-
-    def path(self, k, base, *, required=False):
-        v = self.get(k, str, None, required=required)
-        if v is None:
-            return None
-        p = Path(v).expanduser()
-        p = p if p.is_absolute() else (base / p)
-        if not p.exists():
-            raise self.err(k, f"file not found: {p}", v)
-        return p
 
 
 def _prior(r: _Reader, k):
@@ -274,12 +211,8 @@ def _epoch(r: _Reader, base, index):
     return Epoch(label=label, spectra=tuple(spectra), photometry=phot)
 
 
-def parse_config(table, path="<config>"):
-    """Validate a parsed TOML table; ``path`` is used for messages and relative paths."""
-    path = Path(path)
-    base = path.parent if path.name else Path(".")
-    top = _Reader(str(path), table)
-    name = top.get("name", str, path.stem)
+def _grids(top, base):
+    """``grid = "name" | "file" | [...]``: the grids' names or resolved paths."""
     grid = top.get("grid", (str, list), "builtin")
     names = grid if isinstance(grid, list) else [grid]
     if not names:
@@ -298,9 +231,10 @@ def parse_config(table, path="<config>"):
         grids.append(g)
     if len(set(grids)) != len(grids):
         raise top.err("grid", f"lists a grid twice: {names}", names)
-    grid = grids[0]
+    return grids, names
 
-    m = top.sub("model") or _Reader(str(path), {}, "model.")
+
+def _model(m):
     model = ModelSpec(
         extinction_law=m.choice("extinction_law", tuple(LAWS), "CCM89"),
         veil=m.choice("veil", VEILS, "none"),
@@ -318,7 +252,12 @@ def parse_config(table, path="<config>"):
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
                     model.grain_spread_dex)
     m.done()
+    return model
 
+
+def _epochs(top, base, model, path):
+    """The epochs, with each spectrum's mismatch default set; and the model with the
+    kinds of mismatch term in use."""
     epochs_raw = top.get("epoch", list, None, required=True)
     if not epochs_raw:
         raise top.err("epoch", "is empty: give at least one [[epoch]] table with a spectrum "
@@ -331,29 +270,23 @@ def parse_config(table, path="<config>"):
     labels = [e.label for e in epochs]
     if len(set(labels)) != len(labels):
         raise top.err("epoch", f"epoch labels must be unique but got {labels}", labels)
-
     # the default mismatch term: correlated for the Gaussian likelihood; the Student-t
     # likelihood (robust, independent pixels) has none
     default = "none" if model.likelihood == "student_t" else DEFAULT_MISMATCH
     epochs = [replace(e, spectra=tuple(replace(s, mismatch=s.mismatch or default)
                                        for s in e.spectra)) for e in epochs]
     terms = {s.mismatch for e in epochs for s in e.spectra} - {"none"}
-    model = replace(model, mismatch_terms=tuple(sorted(terms)))
+    return epochs, replace(model, mismatch_terms=tuple(sorted(terms)))
 
-    shared = tuple(top.get("shared", list, list(DEFAULT_SHARED)))
-    for s in shared:
-        if not isinstance(s, str):
-            raise top.err("shared", f"should list parameter names but got {s!r}", s)
 
-    pr = top.sub("priors") or _Reader(str(path), {}, "priors.")
-    priors = {k: _prior(pr, k) for k in list(pr.table)}
-    pr.done()
-
-    s = top.sub("sampler") or _Reader(str(path), {}, "sampler.")
+def _sampler(s):
+    if "checkpoint_every" in s.table:  # accepted (and ignored) by earlier versions
+        raise s.err("checkpoint_every", "is not a setting: the checkpoint is written after "
+                    "every check_every steps (set check_every)", s.table["checkpoint_every"])
     sampler = SamplerSpec(**{
         k: s.get(k, bool if k == "evidence" else int, getattr(SamplerSpec, k))
         for k in SamplerSpec.__dataclass_fields__})
-    for k in ("n_walkers", "max_steps", "check_every", "n_starts", "checkpoint_every", "nlive"):
+    for k in ("n_walkers", "max_steps", "check_every", "n_starts", "nlive"):
         if getattr(sampler, k) <= 0:
             raise s.err(k, f"should be > 0 but got {getattr(sampler, k)}", getattr(sampler, k))
     # a default min_steps above a small max_steps is the usual short test run (it ends
@@ -365,7 +298,11 @@ def parse_config(table, path="<config>"):
         raise s.err("seed", f"should be an integer with 0 <= seed < 2**63 but got "
                     f"{sampler.seed}", sampler.seed)
     s.done()
+    return sampler
 
+
+def _distance(top):
+    """The distance or parallax prior (at most one of them)."""
     distance = _prior(top, "distance_pc")
     parallax = _prior(top, "parallax_mas")
     _mostly_positive(top, "distance_pc", distance)
@@ -376,31 +313,36 @@ def parse_config(table, path="<config>"):
         lo = parallax.support[0]
         if lo <= 0 and parallax.kind != "normal":
             raise top.err("parallax_mas", f"should be > 0 but the prior reaches {lo}", lo)
-    hyps = []
-    for i, t in enumerate(top.get("hypothesis", list, [])):
-        if not isinstance(t, dict):
-            raise top.err(f"hypothesis[{i}]", f"should be a table but got {t!r}", t)
-        h = _Reader(str(path), t, f"hypothesis[{i}].")
-        hname = h.get("name", str, required=True)
-        if not hname.isidentifier():
-            raise h.err("name", f"should be a simple name (letters, digits, _) but got {hname!r}",
-                        hname)
-        over = {}
-        for k in ("veil", "grain_material", "extinction_law", "likelihood"):
-            if k in t:
-                allowed = {"veil": VEILS, "likelihood": ("gaussian", "student_t"),
-                           "grain_material": tuple(MATERIALS),
-                           "extinction_law": tuple(LAWS)}.get(k)
-                over[k] = h.choice(k, allowed, None) if allowed else h.get(k, str)
-        for k in ("scattering", "patches"):
-            if k in t:
-                over[k] = h.get(k, bool)
-        if "scatter_cone_deg" in t:
-            over["scatter_cone_deg"] = _cone_deg(h, None)
-        h.done()
-        hyps.append((hname, over))
-    if len({n for n, _ in hyps}) != len(hyps):
-        raise top.err("hypothesis", "hypothesis names must be unique", [n for n, _ in hyps])
+    if distance is not None and distance.support[0] <= 0 and distance.kind != "normal":
+        raise top.err("distance_pc", f"should be > 0 but the prior reaches "
+                      f"{distance.support[0]:g}", distance.support[0])
+    return distance, parallax
+
+
+def _hypothesis(h, t):
+    """One ``[[hypothesis]]`` table: its name and the model settings it overrides."""
+    hname = h.get("name", str, required=True)
+    if not hname.isidentifier():
+        raise h.err("name", f"should be a simple name (letters, digits, _) but got {hname!r}",
+                    hname)
+    over = {}
+    for k in ("veil", "grain_material", "extinction_law", "likelihood"):
+        if k in t:
+            allowed = {"veil": VEILS, "likelihood": ("gaussian", "student_t"),
+                       "grain_material": tuple(MATERIALS),
+                       "extinction_law": tuple(LAWS)}[k]
+            over[k] = h.choice(k, allowed, None)
+    for k in ("scattering", "patches"):
+        if k in t:
+            over[k] = h.get(k, bool)
+    if "scatter_cone_deg" in t:
+        over["scatter_cone_deg"] = _cone_deg(h, None)
+    h.done()
+    return hname, over
+
+
+def _check_likelihoods(path, model, hyps, epochs):
+    """The Student-t likelihood has no calibration marginalisation and no mismatch term."""
     calibrated = any(s.calibration_order >= 0 for e in epochs for s in e.spectra)
     for where, lik in [("model.likelihood", model.likelihood)] + [
             (f"hypothesis[{i}].likelihood", o.get("likelihood")) for i, (_, o) in enumerate(hyps)]:
@@ -408,21 +350,45 @@ def parse_config(table, path="<config>"):
             raise ConfigError("the Student-t likelihood cannot marginalise a calibration "
                               "polynomial; set calibration_order = -1 or use gaussian",
                               file=str(path), key=where, value=lik)
-        if lik == "student_t" and terms:
+        if lik == "student_t" and model.mismatch_terms:
             raise ConfigError("the Student-t likelihood has no mismatch term; set mismatch = "
                               "\"none\" in every spectrum or use gaussian",
                               file=str(path), key=where, value=lik)
-    if distance is not None and distance.support[0] <= 0 and distance.kind != "normal":
-        raise top.err("distance_pc", f"should be > 0 but the prior reaches "
-                      f"{distance.support[0]:g}", distance.support[0])
+
+
+def parse_config(table, path="<config>"):
+    """Validate a parsed TOML table; ``path`` is used for messages and relative paths."""
+    path = Path(path)
+    base = path.parent if path.name else Path(".")
+    top = _Reader(str(path), table)
+    name = top.get("name", str, path.stem)
+    grids, grid_names = _grids(top, base)
+    model = _model(top.sub("model") or _Reader(str(path), {}, "model."))
+    epochs, model = _epochs(top, base, model, path)
+    shared = tuple(top.get("shared", list, list(DEFAULT_SHARED)))
+    for s in shared:
+        if not isinstance(s, str):
+            raise top.err("shared", f"should list parameter names but got {s!r}", s)
+    pr = top.sub("priors") or _Reader(str(path), {}, "priors.")
+    priors = {k: _prior(pr, k) for k in list(pr.table)}
+    pr.done()
+    sampler = _sampler(top.sub("sampler") or _Reader(str(path), {}, "sampler."))
+    distance, parallax = _distance(top)
+    hyps = []
+    for i, t in enumerate(top.get("hypothesis", list, [])):
+        if not isinstance(t, dict):
+            raise top.err(f"hypothesis[{i}]", f"should be a table but got {t!r}", t)
+        hyps.append(_hypothesis(_Reader(str(path), t, f"hypothesis[{i}]."), t))
+    if len({n for n, _ in hyps}) != len(hyps):
+        raise top.err("hypothesis", "hypothesis names must be unique", [n for n, _ in hyps])
+    _check_likelihoods(path, model, hyps, epochs)
     top.done()
     if len(grids) > 1 and hyps:
         raise top.err("grid", "several grids and several hypotheses in one config are not "
-                      "supported: fit the hypotheses with one grid at a time", names)
-    return Config(path=path, name=name, grid=grid, grids=tuple(grids), epochs=tuple(epochs),
-                  model=model,
-                  priors=priors, shared=shared, sampler=sampler, distance_pc=distance,
-                  parallax_mas=parallax,
+                      "supported: fit the hypotheses with one grid at a time", grid_names)
+    return Config(path=path, name=name, grid=grids[0], grids=tuple(grids),
+                  epochs=tuple(epochs), model=model, priors=priors, shared=shared,
+                  sampler=sampler, distance_pc=distance, parallax_mas=parallax,
                   hypotheses=tuple(hyps), raw=table)
 
 

@@ -10,6 +10,7 @@ __all__ = [
     "DataError",
     "GridError",
     "OffGridError",
+    "ClusterError",
     "ConvergenceWarning",
 ]
 
@@ -34,6 +35,14 @@ class DataError(TeffmcError):
         self.file, self.column, self.value = file, column, value
         where = ":".join(str(p) for p in (file, column) if p is not None)
         super().__init__(f"{where}: {message}" if where else message)
+
+
+class ClusterError(TeffmcError):
+    """The Dask cluster of a batch cannot be reached or was lost mid-batch.
+
+    Not an input error: the command line exits with status 1. Finished stars and
+    sampler checkpoints are kept, so re-running the same command resumes.
+    """
 
 
 class GridError(TeffmcError):

@@ -19,6 +19,7 @@ import numpy as np
 
 from .dust import ExtinctionTable, Veil
 from .constants import C_KMS
+from .likelihood.mismatch import _steps as _kernel_steps
 
 __all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "observed_flux", "band_pixels", "SpectrumChannel",
            "PhotometryChannel"]
@@ -26,6 +27,9 @@ __all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "observed_flux", "band_pixels",
 MAS_TO_RAD = np.pi / (180.0 * 3600.0 * 1000.0)
 PHOT_PIXEL_R = 1000.0  # lambda/dlambda of the pixels used for synthetic photometry
 PHOT_SMOOTH_R = 500.0  # resolving power the grid is smoothed to before that sampling
+#: a spectrum with more than this many times the grid's own pixels over its span is
+#: modelled on the grid's pixels and resampled per call (not stored on its pixels)
+FINE_DATA_FACTOR = 4.0
 
 
 _LN10 = np.log(10.0)
@@ -131,10 +135,28 @@ class SpectrumChannel:
         self.wave = np.asarray(spectrum.wave, float)[use]
         self.data = np.asarray(spectrum.flux, float)[use]
         self.err = np.asarray(spectrum.err, float)[use]
-        full = grid.on_pixels(np.asarray(spectrum.wave, float), resolution=resolution,
-                              fwhm_A=fwhm_A)
-        self.grid = full.on_pixels(self.wave) if not use.all() else full
-        self.dust = Dust(self.wave, model, r_v_prior)
+        # the model is evaluated on "work" pixels and mapped to the data's by ``resample``
+        # (None: the work pixels are the data's own)
+        self.resample, work = None, self.wave
+        self.log_resample = resolution is None and fwhm_A is None
+        native = _native_span(grid, self.wave, resolution, fwhm_A)
+        if native is not None and native.size * FINE_DATA_FACTOR < self.wave.size:
+            # data sampled much finer than the grid: keep the grid on its own pixels and
+            # convolve-resample each prediction with one sparse matrix, instead of storing
+            # every model on every data pixel (memory n_models x n_pixels; bench_memory)
+            from .observe.lsf import lsf_matrix
+
+            work = native
+            self.grid = grid.on_pixels(native)
+            self.resample = (lsf_matrix(native, self.wave, resolution=resolution,
+                                        fwhm_A=fwhm_A).T.tocsr()
+                             if resolution is not None or fwhm_A is not None
+                             else _linear_matrix(native, self.wave).T.tocsr())
+        else:
+            full = grid.on_pixels(np.asarray(spectrum.wave, float), resolution=resolution,
+                                  fwhm_A=fwhm_A)
+            self.grid = full.on_pixels(self.wave) if not use.all() else full
+        self.dust = Dust(work, model, r_v_prior)
         self.likelihood, self.student_nu = model.likelihood, model.student_nu
         # fractional interpolation error per pixel (leave-one-node-out), or None
         self.interp_frac = None
@@ -143,9 +165,12 @@ class SpectrumChannel:
 
             axes = tuple(a for a in ("teff", "logg", "mh") if getattr(self.grid, a).size >= 3)
             self.interp_frac = np.nan_to_num(leave_one_out_error(self.grid, axes=axes))
+            if self.resample is not None:
+                self.interp_frac = (self.interp_frac @ self.resample).ravel()
         # model-mismatch term (teffmc.likelihood.mismatch) and its kernel axis [km/s]
         self.mismatch = mismatch
         self.velocity = C_KMS * np.log(self.wave)
+        self.kernel_steps = _kernel_steps(self.velocity)
         self.calibration_order = int(calibration_order)
         self.calibration_sigma = float(calibration_sigma)
         if self.calibration_order >= 0:
@@ -161,7 +186,39 @@ class SpectrumChannel:
 
     def predict(self, p):
         """Model flux (n, n_pix) before the calibration polynomial."""
-        return observed_flux(self.grid, self.dust, p)
+        flux = observed_flux(self.grid, self.dust, p)
+        if self.resample is None:
+            return flux
+        if self.log_resample:  # no line-spread: interpolate log flux, as the grid does
+            return np.exp(np.asarray(np.log(flux) @ self.resample))
+        return np.asarray(flux @ self.resample)
+
+
+def _native_span(grid, wave, resolution, fwhm_A):
+    """The grid's own pixels covering ``wave`` with the line-spread's reach, or None
+    (an analytic photosphere has no pixels of its own)."""
+    if not hasattr(grid, "log_flux"):
+        return None
+    gw = np.asarray(grid.wave, float)
+    if resolution is not None:
+        reach = 5.0 * wave[-1] / resolution / 2.3548
+    else:
+        reach = 5.0 * (fwhm_A or 0.0) / 2.3548
+    i0 = max(int(np.searchsorted(gw, wave[0] - reach)) - 2, 0)
+    i1 = min(int(np.searchsorted(gw, wave[-1] + reach)) + 2, gw.size)
+    return gw[i0:i1]
+
+
+def _linear_matrix(x, y):
+    """Sparse (len(y), len(x)) matrix of linear interpolation from x to y (inside x)."""
+    from scipy import sparse
+
+    j = np.clip(np.searchsorted(x, y, side="right") - 1, 0, x.size - 2)
+    w = (y - x[j]) / (x[j + 1] - x[j])
+    rows = np.repeat(np.arange(y.size), 2)
+    cols = np.stack([j, j + 1], axis=1).ravel()
+    vals = np.stack([1.0 - w, w], axis=1).ravel()
+    return sparse.csr_matrix((vals, (rows, cols)), shape=(y.size, x.size))
 
 
 def band_pixels(grid_wave, bands, source=None):

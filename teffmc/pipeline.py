@@ -30,41 +30,83 @@ CHUNK = 512
 MAX_STORED_DRAWS = 8000   # posterior draws kept in posterior.nc (all walkers together)
 MAX_GOF_DRAWS = 200       # draws for the goodness-of-fit numbers
 MAX_LOO_DRAWS = 2000      # draws with pointwise log-likelihood (PSIS-LOO works well here)
+MIN_LOO_DRAWS = 200       # ... and never fewer (very long spectra)
+MAX_POINTWISE_VALUES = 50_000_000  # draws x points kept for LOO (200 MB as float32)
 CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synthesis; "
                 "for publication-grade temperatures import a validated model grid.")
 
 
-class LogCoordinates:
-    """The sampler's coordinates: ln x for every parameter with a log-uniform prior.
+class SamplerCoordinates:
+    """The sampler's coordinates u; draws, summaries and files stay in x.
 
-    A log-uniform prior spanning decades is flat in ln x but piles up at the low end in
-    x; the ensemble moves (differences and stretches of walker positions) then mix
-    slowly -- measured on the demo with a correlated mismatch term: tau of
-    ``mismatch_scale`` 478 steps sampled in x. The density in u = ln x carries the
-    Jacobian, log p(u) = log p(x(u)) + sum ln x; draws are returned in x.
+    * ln x for every parameter with a log-uniform prior: such a prior spanning decades
+      is flat in ln x but piles up at the low end in x, and the ensemble moves
+      (differences and stretches of walker positions) then mix slowly -- measured on the
+      demo with a correlated mismatch term: tau of ``mismatch_scale`` 478 steps sampled
+      in x, ~70-100 in ln x.
+    * the veil's covering fraction c and optical depth tau, when both are free in an
+      epoch, as (c, e) with e = -ln(1 - d) and d = c (1 - exp(-tau)) the fraction of
+      the star's light the veil removes at 0.55 micron (before scattering): the data
+      measure e almost directly, while c and tau trade along the curved ridge
+      c (1 - e^-tau) = d, which the ensemble's straight-line moves cross slowly (tau
+      ~300 steps in the issue). In e the dimming is a magnitude-like quantity, so its
+      trade with the angular diameter (2 ln theta - e ~ const for grey grains) is a
+      straight line too. d = 1 - e^-e, tau = -ln(1 - d / c), 0 <= d < c.
+
+    The density in u carries the Jacobian, log p(u) = log p(x(u)) + log |dx/du| with
+    log |dx/du| = sum ln x (log coordinates) + sum [-e - ln(c - d)] (veil pairs), so
+    the priors on x are unchanged (tests/test_coordinates.py).
     """
 
     def __init__(self, space, log_post):
         self.log_post = log_post
         self.space = space
         self.log = np.array([p.kind == "loguniform" for p in space.priors], bool)
+        self.pairs = []
+        names = list(space.names)
+        for k, name in enumerate(names):
+            base, at, label = name.partition("@")
+            cover = "veil_cover" + at + label
+            if base == "veil_tau" and cover in names:
+                c = names.index(cover)
+                if not (self.log[k] or self.log[c]):
+                    self.pairs.append((k, c))
+        self.pairs = np.array(self.pairs, int).reshape(-1, 2)
 
     def to_x(self, u):
         x = np.array(u, float, copy=True)
         x[..., self.log] = np.exp(x[..., self.log])
+        t, c = self.pairs[:, 0], self.pairs[:, 1]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            ratio = -np.expm1(-x[..., t]) / x[..., c]          # d / c
+            inside = (ratio >= 0) & (ratio < 1)
+            x[..., t] = np.where(inside, -np.log1p(-np.where(inside, ratio, 0.0)), np.nan)
         return x
 
     def to_u(self, x):
         u = np.array(x, float, copy=True)
         u[..., self.log] = np.log(u[..., self.log])
+        t, c = self.pairs[:, 0], self.pairs[:, 1]
+        u[..., t] = -np.log1p(u[..., c] * np.expm1(-u[..., t]))   # e = -ln(1 - d)
         return u
 
     def jacobian(self, u):
-        return np.sum(np.asarray(u)[..., self.log], axis=-1)
+        u = np.asarray(u)
+        t, c = self.pairs[:, 0], self.pairs[:, 1]
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            d = -np.expm1(-u[..., t])
+            pair = -np.sum(u[..., t] + np.log(u[..., c] - d), axis=-1)
+        return np.sum(u[..., self.log], axis=-1) + pair
 
     def __call__(self, u):
         u = np.atleast_2d(np.asarray(u, float))
-        return self.log_post(self.to_x(u)) + self.jacobian(u)
+        x = self.to_x(u)
+        ok = np.all(np.isfinite(x), axis=1)
+        out = np.full(u.shape[0], -np.inf)
+        if ok.any():
+            out[ok] = self.log_post(x[ok]) + self.jacobian(u[ok])
+        out[np.isnan(out)] = -np.inf
+        return out
 
     def sample_prior(self, rng, n):
         return self.to_u(self.space.sample_prior(rng, n))
@@ -75,20 +117,50 @@ class LogCoordinates:
                        log_prob=result.log_prob - self.jacobian(result.chain))
 
 
+#: the former name (log coordinates only)
+LogCoordinates = SamplerCoordinates
+
+
+def hole_cautions(space, grid):
+    """Cautions for the parts of the prior that holes in the grid remove from the model.
+
+    The sampler never enters a cell touching a missing model (interpolation there would
+    cross the hole), so the posterior is silently truncated there: say where."""
+    if not hasattr(grid, "excluded_regions"):
+        return []
+    box = {}
+    for ax in ("teff", "logg", "mh"):
+        ps = [space.prior_of(ax, lab) for lab in space.labels]
+        box[ax] = (min(p.support[0] for p in ps), max(p.support[1] for p in ps))
+    units = {"teff": " K", "logg": "", "mh": ""}
+    out = []
+    for node, region in grid.excluded_regions(box):
+        where = ", ".join(f"{ax} {lo:g}-{hi:g}{units[ax]}" if lo != hi else f"{ax} {lo:g}"
+                          for ax, (lo, hi) in region.items())
+        out.append(f"the grid has no model at teff={node[0]:g}, logg={node[1]:g}, "
+                   f"mh={node[2]:g}: the region {where} inside the prior is excluded "
+                   "from the fit (no interpolation across a hole)")
+    return out
+
+
 def sample_posterior(prep, checkpoint, *, resume, quiet, log):
-    """Optimised start, then emcee until converged or out of steps (in log coordinates
-    for log-uniform priors, see :class:`LogCoordinates`)."""
-    from .sample import find_start, initial_ball, run_sampler
+    """Optimised start, then emcee until converged or out of steps (in the coordinates
+    of :class:`SamplerCoordinates`)."""
+    from .sample import find_start, run_sampler
+    from .sampling_start import laplace_ball
 
     s = prep.config.sampler
-    coords = LogCoordinates(prep.space, prep.log_post)
+    coords = SamplerCoordinates(prep.space, prep.log_post)
     rng = np.random.default_rng(s.seed)
     x0 = None
     if not resume:
         x0 = find_start(coords, coords.sample_prior, n_starts=s.n_starts, rng=rng)
         log("start: " + ", ".join(f"{n}={v:.4g}" for n, v in zip(prep.space.names,
                                                                  coords.to_x(x0))))
-        x0 = initial_ball(x0, rng, s.n_walkers, coords, scale=1e-3)
+        # walkers from the Laplace approximation at the optimum: a start in the typical
+        # set (tau before/after in DEVELOPERS.md, bench/bench_speed.py)
+        x0 = laplace_ball(coords, x0, rng, s.n_walkers,
+                          1e-3 * np.where(x0 != 0, np.abs(x0), 1.0))
     result = run_sampler(coords, x0, names=prep.space.names, n_walkers=s.n_walkers,
                          seed=s.seed, max_steps=s.max_steps, min_steps=s.min_steps,
                          check_every=s.check_every, checkpoint=checkpoint, resume=resume,
@@ -111,8 +183,11 @@ class VBand:
         return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
 
 
-def _chunked(fn, flat):
+def _chunked(fn, flat, dtype=None):
     parts = [fn(flat[i:i + CHUNK]) for i in range(0, flat.shape[0], CHUNK)]
+    if dtype is not None:  # each part converted as it comes (peak memory)
+        parts = [{k: v.astype(dtype) for k, v in p.items()} if isinstance(p, dict)
+                 else p.astype(dtype) for p in parts]
     if isinstance(parts[0], dict):
         return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
     return np.concatenate(parts)
@@ -216,6 +291,14 @@ def _predict(prep, x):
     return out
 
 
+def loo_draws(prep):
+    """How many draws get pointwise log-likelihoods: MAX_LOO_DRAWS, fewer for very long
+    spectra so that the n_draws x n_points array stays within MAX_POINTWISE_VALUES (at
+    least MIN_LOO_DRAWS; PSIS's Pareto k says when that is too few)."""
+    n_points = sum(ch.n_points for chans in prep.channels.values() for ch in chans)
+    return int(min(MAX_LOO_DRAWS, max(MIN_LOO_DRAWS, MAX_POINTWISE_VALUES // n_points)))
+
+
 def finish_run(prep, result, folder, *, log, hypothesis=None):
     """Derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
     cfg, space = prep.config, prep.space
@@ -231,10 +314,10 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
                for k, v in derived_quantities(prep, flat, rng).items()}
     # pointwise log-likelihood (for PSIS-LOO) on at most MAX_LOO_DRAWS draws: it is
     # n_draws x n_pixels, by far the largest part of posterior.nc
-    every = max(1, math.ceil(n_draws * n_walkers / MAX_LOO_DRAWS))
+    every = max(1, math.ceil(n_draws * n_walkers / loo_draws(prep)))
     loo_chain = result.chain[::every]
-    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim))
-    pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1).astype(np.float32)
+    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim), np.float32)
+    pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1)
                  for k, v in pointwise.items()}
     sub = result.chain[-min(n_draws, 4):]
     predictive = {k: v.reshape(sub.shape[0], n_walkers, -1)
@@ -285,6 +368,7 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
         "goodness_of_fit": gof,
         "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
         + gof_cautions(gof)
+        + hole_cautions(space, prep.grid)
         + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
     }
     if cfg.sampler.evidence:

@@ -126,6 +126,10 @@ def prepare(config, grid=None, log=print, other_models=()):
             chans.append(PhotometryChannel(phot, grid, cfg.model, r_v_prior))
             log(f"epoch {ep.label}: photometry {ep.photometry.name}, bands {', '.join(phot.bands)}")
         channels[ep.label] = chans
+    from .pipeline import hole_cautions
+
+    for note in hole_cautions(space, grid):
+        log("WARNING: " + note)
     return Prepared(cfg, grid, space, channels, Posterior(space, channels, grid))
 
 

@@ -96,7 +96,8 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
     from astropy import units as u
     from astropy.table import Table
 
-    from .model import Dust, band_pixels, observed_flux
+    from .model import Dust, SpectrumChannel, band_pixels, observed_flux
+    from .observe.spectrum import make_spectrum
     from .observe import BandSet
     from .priors import Prior
 
@@ -108,7 +109,9 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
     p.setdefault("r_v", np.array([rv.value]))
 
     wave = np.exp(np.arange(np.log(wave_range[0]), np.log(wave_range[1]), 0.5 / resolution))
-    flux = observed_flux(grid.on_pixels(wave, resolution=resolution), Dust(wave, model, rv), p)[0]
+    # the fit's own route from grid to pixels (teffmc.model.SpectrumChannel)
+    flat = make_spectrum(wave, np.ones_like(wave), np.ones_like(wave))
+    flux = SpectrumChannel(flat, grid, model, rv, resolution=resolution).predict(p)[0]
     x = 2 * (wave - wave[0]) / (wave[-1] - wave[0]) - 1
     flux = flux * (1.0 + tilt[0] * x + tilt[1] * (1.5 * x**2 - 0.5))
     peak = flux.max()

@@ -151,3 +151,16 @@ def test_off_grid_names_the_epoch(tmp_path):
     with pytest.raises(OffGridError, match="epoch late") as info:
         prep.log_post.pointwise(x_bad)
     assert info.value.point["teff"] == bounds[1] + 1000.0
+
+
+def test_checkpoint_every_is_refused_with_the_setting_that_does_it(tmp_path, capsys):
+    # earlier versions accepted checkpoint_every and ignored it; the checkpoint is written
+    # after every check_every steps
+    (tmp_path / "phot.ecsv").write_text(PHOT)
+    path = tmp_path / "star.toml"
+    path.write_text(BASE.format(law="CCM89", material="silicate", priors="", hypothesis="")
+                    + "checkpoint_every = 50\n")
+    assert main(["fit", str(path), "--out", str(tmp_path / "run"), "--quiet"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and not (tmp_path / "run.partial").exists()
+    assert "sampler.checkpoint_every" in err and "check_every" in err

@@ -99,3 +99,23 @@ def test_table_free_rv_close_for_other_laws(law):
         np.testing.assert_allclose(got[i], extinction_curve(law, r, wave), atol=1e-3)
     with pytest.raises(ConfigError, match="r_v|R_V"):
         tab.curve([2.4])
+
+
+def test_tables_on_the_same_pixels_are_computed_once_per_process(monkeypatch):
+    # common practice, no source: a batch worker fitting many stars with the same pixels
+    # tabulates each curve once; other pixels or another R_V range are new tables
+    from teffmc.dust import extinction
+
+    wave = np.linspace(5000.0, 9000.0, 37)
+    first = ExtinctionTable("F99", wave, r_v_range=(2.6, 5.4), n_rv=7)
+    before = dict(extinction.TABLE_STATS)
+    monkeypatch.setattr(extinction, "_curve", lambda *a: (_ for _ in ()).throw(
+        AssertionError("computed again")))
+    again = ExtinctionTable("F99", wave.copy(), r_v_range=(2.6, 5.4), n_rv=7)
+    assert extinction.TABLE_STATS["hit"] == before["hit"] + 1
+    np.testing.assert_array_equal(again.curve([3.1, 4.0]), first.curve([3.1, 4.0]))
+    with pytest.raises(AssertionError, match="computed again"):
+        ExtinctionTable("F99", wave[1:], r_v_range=(2.6, 5.4), n_rv=7)
+    with pytest.raises(AssertionError, match="computed again"):
+        ExtinctionTable("F99", wave, r_v_range=(2.6, 5.5), n_rv=7)
+    assert extinction.TABLE_STATS["miss"] == before["miss"] + 2

@@ -7,6 +7,7 @@ import sys
 import numpy as np
 import pytest
 
+from teffmc.dust import cache
 from teffmc.dust import MATERIALS, ConstantIndex, MieTable, efficiencies, grain_optics, mietable
 from teffmc.errors import ConfigError, DataError
 
@@ -190,8 +191,27 @@ def test_damaged_cache_file_is_recomputed(tmp_path):
     first = MieTable(*args)
     (path,) = (tmp_path / "cache").glob("mie-*.npz")
     path.write_bytes(b"not a zip file")
+    cache.forget()  # a new process: nothing in memory
+    miss = cache.STATS["miss"]
     again = MieTable(*args)
+    assert cache.STATS["miss"] == miss + 1
     np.testing.assert_array_equal(again.table_q_ext, first.table_q_ext)
+
+
+def test_table_is_kept_in_memory_for_the_next_star(tmp_path, monkeypatch):
+    # common practice, no source: a process fitting many stars reads each table once
+    args = ("silicate", WAVE[:40], 0.1, (0.1, 1.0), 5)
+    first = MieTable(*args)
+    cache.forget()
+    before = dict(cache.STATS)
+    second = MieTable(*args)  # read from the file once ...
+    monkeypatch.setattr(np, "load", lambda *a, **k: (_ for _ in ()).throw(OSError("no")))
+    third = MieTable(*args)  # ... then from memory, without touching the file
+    assert cache.STATS["disk"] == before["disk"] + 1
+    assert cache.STATS["memory"] == before["memory"] + 1
+    for t in (second, third):
+        np.testing.assert_array_equal(t.table_q_ext, first.table_q_ext)
+    assert not third.table_q_ext.flags.writeable  # one copy shared by the stars
 
 
 def test_fine_x_grid_spans_and_steps():

@@ -44,6 +44,38 @@ def test_multilinear_is_linear_in_each_axis(rng):
     np.testing.assert_allclose(got, want, rtol=0, atol=2e-6)
 
 
+def test_dense_and_sparse_products_agree(rng, monkeypatch):
+    """The dense product over the cells the walkers touch (clustered walkers) and the
+    sparse one (spread walkers) give the same multilinear interpolation, also with a
+    nuisance axis, and equal the 8-corner sum written out (common practice, no source)."""
+    import teffmc.photosphere.grid as grid_mod
+    from teffmc.photosphere.nuisance import NuisanceAxis
+
+    g = _toy_grid(rng)
+    shape = g.log_flux.shape
+    axis = NuisanceAxis(name="tio", step=np.log(2.0), minus=g.log_flux - 0.1 * rng.random(shape),
+                        plus=g.log_flux + 0.2 * rng.random(shape), low=0.5, high=2.0, note="")
+    g = Grid(g.teff, g.logg, g.mh, g.wave, g.log_flux, name="toy", nuisance=(axis,))
+    pts = rng.uniform([3000, 0, -0.5], [4000, 1, 0], (30, 3))
+    x = rng.uniform(-0.5, 0.5, 30)
+    dense = g.interpolate_log(*pts.T, {"tio": x})
+    monkeypatch.setattr(grid_mod, "_DENSE_MODELS", 0)
+    sparse = g.interpolate_log(*pts.T, {"tio": x})
+    np.testing.assert_allclose(dense, sparse, rtol=0, atol=1e-12)
+    lf = g.log_flux.astype(float)
+    d1 = (axis.plus - axis.minus) / (2 * axis.step)
+    d2 = (axis.plus - 2 * g.log_flux + axis.minus) / axis.step**2
+    for k, (t, lg, m) in enumerate(pts):
+        i = min(np.searchsorted(g.teff, t, "right") - 1, 1)
+        wi, wj, wk = (t - g.teff[i]) / 500.0, lg, (m + 0.5) / 0.5
+        want = 0.0
+        for a, b, c in np.ndindex(2, 2, 2):
+            w = (wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk)
+            node = (i + a, b, c)
+            want = want + w * (lf[node] + x[k] * d1[node] + 0.5 * x[k] ** 2 * d2[node])
+        np.testing.assert_allclose(dense[k], want, rtol=0, atol=1e-9)
+
+
 def test_off_grid_error_carries_point_and_bounds(rng):
     g = _toy_grid(rng)
     with pytest.raises(OffGridError) as e:
@@ -80,3 +112,62 @@ def test_corrupt_file_is_detected(tmp_path, rng):
         f["log_flux"][0, 0, 0, 0] += 1.0
     with pytest.raises(GridError, match="checksum"):
         Grid.read(tmp_path / "g.h5")
+
+
+def test_excluded_regions_name_what_a_hole_removes_from_a_prior(rng):
+    # a hole at (3500, 0, -0.5) removes the cells around it: teff 3000-4000, logg 0-1,
+    # mh -0.5-0 (open at the neighbours' faces, where the hole has weight 0)
+    g = _toy_grid(rng, holes=[(1, 0, 0)])
+    full = {"teff": (3000.0, 4000.0), "logg": (0.0, 1.0), "mh": (-0.5, 0.0)}
+    [(node, region)] = g.excluded_regions(full)
+    assert node == (3500.0, 0.0, -0.5)
+    assert region == {"teff": (3000.0, 4000.0), "logg": (0.0, 1.0), "mh": (-0.5, 0.0)}
+    # a prior fixed on the far face (logg = 1) never gives the hole weight
+    assert g.excluded_regions({**full, "logg": (1.0, 1.0)}) == []
+    assert g.check_inside(3500.0, 1.0, -0.25)
+    # a prior box that reaches in only part way: the region is clipped to it
+    [(_, region)] = g.excluded_regions({**full, "teff": (3800.0, 4000.0)})
+    assert region["teff"] == (3800.0, 4000.0)
+    assert not g.check_inside(3900.0, 0.5, -0.25)
+    assert _toy_grid(rng).excluded_regions(full) == []
+
+
+def test_a_fit_whose_prior_crosses_a_hole_says_so(rng, tmp_path):
+    from teffmc.config import load_config
+    from teffmc.parameters import ParameterSpace
+    from teffmc.pipeline import hole_cautions
+
+    g = _toy_grid(rng, holes=[(1, 0, 0)])
+    g.write(tmp_path / "toy.h5")
+    (tmp_path / "p.ecsv").write_text("")
+    (tmp_path / "c.toml").write_text(
+        'grid = "toy.h5"\n[[epoch]]\nphotometry = "p.ecsv"\n[priors]\n'
+        'teff = { dist = "uniform", low = 3000, high = 4000 }\n'
+        'logg = { fixed = 0.5 }\nmh = { fixed = -0.2 }\n')
+    cfg = load_config(tmp_path / "c.toml")
+    notes = hole_cautions(ParameterSpace(cfg, g.bounds), g)
+    assert len(notes) == 1 and "teff=3500" in notes[0] and "teff 3000-4000 K" in notes[0]
+
+
+def test_grid_file_is_read_once_per_process_until_replaced(tmp_path, rng):
+    # common practice, no source: a batch worker reads the grid once for all its stars,
+    # keyed by path and modification time, so a replaced file is read again
+    import os
+
+    from teffmc.photosphere import grid_cache_info
+
+    path = tmp_path / "g.h5"
+    _toy_grid(rng).write(path)
+    before = grid_cache_info()
+    a = load_grid(path)
+    b = load_grid(tmp_path / "." / "g.h5")
+    assert a is b
+    after = grid_cache_info()
+    assert (after.hits, after.misses) == (before.hits + 1, before.misses + 1)
+    new = _toy_grid(rng)
+    new.write(tmp_path / "new.h5")
+    os.replace(tmp_path / "new.h5", path)
+    t = os.stat(path).st_mtime_ns + 10**9
+    os.utime(path, ns=(t, t))  # a replaced file has a new modification time
+    c = load_grid(path)
+    assert c is not a and c.checksum == new.checksum != a.checksum

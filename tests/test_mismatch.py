@@ -13,6 +13,7 @@ from scipy.stats import multivariate_normal
 
 from teffmc.likelihood.mismatch import (
     correlated_loglike,
+    correlated_loglike_parts,
     correlated_loo_pointwise,
     matern32,
     velocity_axis,
@@ -63,6 +64,29 @@ def test_loo_terms_equal_dense_conditionals(with_poly):
         g = q @ (d - m[w])
         ref = -0.5 * np.log(2 * np.pi / np.diag(q)) - 0.5 * g**2 / np.diag(q)
         np.testing.assert_allclose(loo[w], ref, rtol=1e-8, atol=1e-8)
+
+
+@pytest.mark.parametrize("log_uniform", [False, True])
+@pytest.mark.parametrize("with_poly", [False, True])
+def test_fused_filter_equals_dense_normal(with_poly, log_uniform):
+    """The fast filter (variance by parts, one exp per distinct pixel step) gives the
+    dense multivariate normal's value, on uneven and on log-uniform pixels."""
+    t, d, _, m, amp, rho, design = _problem()
+    if log_uniform:
+        t = velocity_axis(np.exp(np.linspace(np.log(5000.0), np.log(7000.0), t.size)))
+    design = design if with_poly else None
+    rng = np.random.default_rng(8)
+    err2 = rng.uniform(1e-4, 1e-2, t.size)
+    jit2 = rng.uniform(0.5, 2.0, m.shape[0])
+    rel_pix = rng.uniform(0.0, 1e-4, t.size)
+    rel_walk = rng.uniform(0.0, 1e-3, m.shape[0])
+    ll = correlated_loglike_parts(d, err2, m, t, amp, rho, jit2, rel_pix, rel_walk, design,
+                                  0.2)
+    for w in range(m.shape[0]):
+        var = jit2[w] * err2 + (rel_pix + rel_walk[w]) * m[w] ** 2
+        cov = _dense_cov(t, m[w], var, amp[w], rho[w], design, 0.2)
+        ref = multivariate_normal(m[w], cov).logpdf(d)
+        assert ll[w] == pytest.approx(ref, abs=1e-8 * abs(ref) + 1e-8)
 
 
 def test_tiny_amplitude_gives_the_independent_likelihood():

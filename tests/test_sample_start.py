@@ -121,3 +121,43 @@ def test_find_start_fails_clearly_when_bounds_exclude_the_support(rng):
     bounds = [(g.mean[0] + 30 * g.sd[0], None), (None, None)]  # beyond the +-20 sd box
     with pytest.raises(TeffmcError, match="inside bounds"):
         find_start(g.log_prob, g.sample_prior, rng=rng, bounds=bounds)
+
+
+def test_laplace_covariance_of_a_gaussian_is_its_covariance():
+    """For a Gaussian the Laplace approximation is exact (common practice, no source):
+    the finite-difference Hessian at the mode recovers the covariance, starting from
+    steps far from one sigma."""
+    from teffmc.sampling_start import laplace_covariance
+
+    g = correlated_gaussian_5d()
+    cov = laplace_covariance(g.log_prob, g.mean, 1e-3 * np.abs(g.mean))
+    np.testing.assert_allclose(cov, g.cov, rtol=1e-5, atol=1e-8 * np.abs(g.cov).max())
+
+
+def test_laplace_ball_lands_in_the_typical_set(rng):
+    """Walkers drawn from the Laplace approximation have the target's spread (not a tiny
+    ball): their Mahalanobis radii follow chi^2 with ndim degrees of freedom."""
+    from scipy.stats import chi2, kstest
+
+    from teffmc.sampling_start import laplace_ball
+
+    g = correlated_gaussian_5d()
+    ball = laplace_ball(g.log_prob, g.mean, rng, 400, 1e-3 * np.abs(g.mean))
+    d = ball - g.mean
+    r2 = np.einsum("ij,jk,ik->i", d, np.linalg.inv(g.cov), d)
+    assert kstest(r2, chi2(5).cdf).pvalue > 1e-3
+
+
+def test_laplace_ball_on_a_prior_edge_stays_inside(rng):
+    """A mode on the edge of the support (a boundary, no curvature there): walkers are
+    still all inside, spread on the free side."""
+    from teffmc.sampling_start import laplace_ball
+
+    def log_prob(x):
+        x = np.atleast_2d(x)
+        lp = -0.5 * (x[:, 0] / 0.1) ** 2 - 0.5 * ((x[:, 1] - 1.0) / 0.2) ** 2
+        return np.where(x[:, 0] >= 0, lp, -np.inf)
+
+    ball = laplace_ball(log_prob, np.array([0.0, 1.0]), rng, 64, np.array([1e-3, 1e-3]))
+    assert np.all(ball[:, 0] >= 0) and np.all(np.isfinite(log_prob(ball)))
+    assert 0.1 < ball[:, 1].std() < 0.4

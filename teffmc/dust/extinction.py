@@ -5,13 +5,36 @@ unitless array as wavenumbers in 1/micron, so every call here passes an
 explicit ``astropy`` Quantity in 1/micron computed from vacuum Angstrom.
 """
 
+import hashlib
+from collections import OrderedDict
+
 import numpy as np
 
 from teffmc.dust._interp import RowInterpolator
 from teffmc.dust._wave import as_wave_aa, check_range
 from teffmc.errors import ConfigError
 
-__all__ = ["LAWS", "ExtinctionTable", "extinction_curve"]
+__all__ = ["LAWS", "ExtinctionTable", "extinction_curve", "TABLE_STATS"]
+
+#: tables served from the per-process memo ("hit") or computed ("miss"): a process
+#: fitting many stars with the same pixels (a ``teffmc batch`` worker) computes each once
+TABLE_STATS = {"hit": 0, "miss": 0}
+_TABLES = OrderedDict()
+_TABLES_SIZE = 64
+
+
+def _memo_table(key, compute):
+    if key in _TABLES:
+        TABLE_STATS["hit"] += 1
+        _TABLES.move_to_end(key)
+        return _TABLES[key]
+    TABLE_STATS["miss"] += 1
+    table = compute()
+    table.flags.writeable = False  # shared by every star of the process
+    _TABLES[key] = table
+    while len(_TABLES) > _TABLES_SIZE:
+        _TABLES.popitem(last=False)
+    return table
 
 #: name -> (``dust_extinction.parameter_averages`` class, paper). All take R_V.
 #: Paper citations from memory.
@@ -139,10 +162,12 @@ class ExtinctionTable:
     def __init__(self, law, wave, r_v=3.1, r_v_range=None, n_rv=41):
         self.law = law
         self.wave = as_wave_aa(wave)
+        pixels = hashlib.sha256(np.ascontiguousarray(self.wave).tobytes()).hexdigest()
         if r_v_range is None:
             self.r_v = float(r_v)
             self.r_v_range = None
-            self._table = _curve(law, self.r_v, self.wave)[None, :]
+            self._table = _memo_table((law, self.r_v, pixels),
+                                      lambda: _curve(law, self.r_v, self.wave)[None, :])
             return
         lo, hi = (float(v) for v in r_v_range)
         if not lo < hi:
@@ -151,7 +176,9 @@ class ExtinctionTable:
             raise ConfigError(f"n_rv should be >= 2 but got {n_rv}", key="n_rv")
         self.r_v, self.r_v_range = None, (lo, hi)
         self._inv_nodes = np.linspace(1.0 / hi, 1.0 / lo, int(n_rv))  # ascending
-        self._table = np.stack([_curve(law, 1.0 / s, self.wave) for s in self._inv_nodes])
+        self._table = _memo_table(
+            (law, lo, hi, int(n_rv), pixels),
+            lambda: np.stack([_curve(law, 1.0 / s, self.wave) for s in self._inv_nodes]))
         self._interp = RowInterpolator(self._inv_nodes, self._table)
 
     def curve(self, r_v):

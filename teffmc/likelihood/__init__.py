@@ -13,7 +13,7 @@ quadrature.
 import numpy as np
 
 from ..errors import OffGridError
-from .mismatch import correlated_loglike, correlated_loo_pointwise
+from .mismatch import correlated_loglike_parts, correlated_loo_pointwise
 
 __all__ = ["Posterior"]
 
@@ -79,11 +79,19 @@ class Posterior:
         if ch.kind == "photometry":
             terms = _gauss(ch.data[None, :] - model, ch.err[None, :] ** 2)
             return terms if pointwise else terms.sum(axis=1)
+        if getattr(ch, "mismatch", "none") == "correlated" and not pointwise:
+            # the variance of pixel_variance by its parts, formed inside the compiled filter
+            frac = getattr(ch, "interp_frac", None)
+            return correlated_loglike_parts(
+                ch.data, ch.err**2, model, ch.velocity, p["mismatch_amp"],
+                p["mismatch_scale"], p["jitter"] ** 2, 0.0 if frac is None else frac**2,
+                p["mismatch_white"] ** 2 if "mismatch_white" in p else 0.0, ch.basis,
+                ch.calibration_sigma, steps=getattr(ch, "kernel_steps", None))
         var = pixel_variance(ch, p, model)
         if getattr(ch, "mismatch", "none") == "correlated":
-            fn = correlated_loo_pointwise if pointwise else correlated_loglike
-            return fn(ch.data, var, model, ch.velocity, p["mismatch_amp"], p["mismatch_scale"],
-                      ch.basis, ch.calibration_sigma)
+            return correlated_loo_pointwise(ch.data, var, model, ch.velocity,
+                                            p["mismatch_amp"], p["mismatch_scale"], ch.basis,
+                                            ch.calibration_sigma)
         if ch.likelihood == "student_t":
             from ..observe.calibration import student_t_loglike, student_t_pointwise
 

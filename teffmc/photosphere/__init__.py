@@ -1,5 +1,6 @@
 """Photosphere models: grid files, interpolation, blackbody, built-in synthesis."""
 
+import os
 from functools import lru_cache
 from importlib.resources import files
 from pathlib import Path
@@ -8,7 +9,8 @@ from ..errors import GridError
 from .blackbody import BlackbodyGrid, planck_surface_flux
 from .grid import Grid
 
-__all__ = ["Grid", "BlackbodyGrid", "load_grid", "planck_surface_flux", "builtin_grid_path"]
+__all__ = ["Grid", "BlackbodyGrid", "load_grid", "planck_surface_flux", "builtin_grid_path",
+           "grid_cache_info"]
 
 
 def builtin_grid_path():
@@ -17,8 +19,24 @@ def builtin_grid_path():
 
 
 @lru_cache(maxsize=4)
-def _read(path):
+def _read(path, mtime_ns):
+    """One grid object per (file, modification time) in a process: a process fitting
+    many stars (a ``teffmc batch`` worker) reads a grid file once, and again only when
+    the file was replaced."""
     return Grid.read(path)
+
+
+def _read_current(path):
+    try:
+        mtime = os.stat(path).st_mtime_ns
+    except OSError:
+        mtime = None  # Grid.read says what is wrong
+    return _read(path, mtime)
+
+
+def grid_cache_info():
+    """Hits and misses of the per-process grid cache (:func:`functools.lru_cache` info)."""
+    return _read.cache_info()
 
 
 def load_grid(path=None):
@@ -35,10 +53,10 @@ def load_grid(path=None):
         p = builtin_grid_path()
         if not p.exists():
             raise GridError(f"the built-in grid file {p} is missing; run `teffmc grid build`")
-        return _read(str(p))
+        return _read_current(str(p))
     if str(path) == "blackbody":
         return BlackbodyGrid()
     p = Path(path)
     if not p.exists():
         raise GridError(f"grid file {p} does not exist")
-    return _read(str(p.resolve()))
+    return _read_current(str(p.resolve()))

@@ -36,6 +36,8 @@ FORMAT_VERSION = 1
 
 
 _LN10 = np.log(10.0)
+#: the most grid models a batch of walkers may touch for the dense interpolation product
+_DENSE_MODELS = 64
 
 
 def grid_checksum(teff, logg, mh, wave, log_flux):
@@ -121,6 +123,35 @@ class Grid:
         """List of ``(teff, logg, mh)`` nodes the grid does not have."""
         return [self.node_params(tuple(i)) for i in np.argwhere(~self._present)]
 
+    def excluded_regions(self, box):
+        """Parts of a parameter box that holes remove from the model.
+
+        A hole removes every interpolation cell that has it as a corner (interpolation
+        never crosses a hole). ``box``: ``{axis: (low, high)}`` for the three axes (a
+        prior's support). Returns, for each hole whose cells overlap the box, a
+        ``(node, region)`` pair: the missing node and ``{axis: (low, high)}`` of the
+        excluded region clipped to the box.
+        """
+        out = []
+        for idx in np.argwhere(~self._present):
+            region = {}
+            for ax, i in zip(AXES, idx):
+                v, (blo, bhi) = getattr(self, ax), box[ax]
+                if v.size == 1:
+                    region[ax] = (float(v[0]), float(v[0]))
+                    continue
+                # the hole has weight on the open interval between its neighbours (closed
+                # at the grid's edge): a point on a neighbour's face gives it weight 0
+                lo, hi = v[max(i - 1, 0)], v[min(i + 1, v.size - 1)]
+                lo_in, hi_in = i == 0, i == v.size - 1
+                a, b = max(lo, blo), min(hi, bhi)
+                if not (a < b or (a == b and (a > lo or lo_in) and (a < hi or hi_in))):
+                    break
+                region[ax] = (float(a), float(b))
+            else:
+                out.append((self.node_params(tuple(idx)), region))
+        return out
+
     @property
     def checksum(self):
         return grid_checksum(self.teff, self.logg, self.mh, self.wave, self.log_flux)
@@ -196,48 +227,60 @@ class Grid:
             raise OffGridError(point, self.bounds)
         (i, wi), (j, wj), (k, wk) = (self._locate(a, v) for a, v in zip(AXES, (teff, logg, mh)))
         nt, ng, nm = self.teff.size, self.logg.size, self.mh.size
-        # one sparse (n_points x n_models) weight matrix, 8 corners per row, times the
-        # (n_models x n_wave) log-flux matrix: ~2.5x faster than 8 gathers (bench_model).
-        # Zero-weight corners are dropped, so a point on a face next to a hole stays finite.
         idx, wts = [], []
         for a, b, c in np.ndindex(2, 2, 2):
             wts.append((wi if a else 1 - wi) * (wj if b else 1 - wj) * (wk if c else 1 - wk))
             idx.append((np.minimum(i + a, nt - 1) * ng + np.minimum(j + b, ng - 1)) * nm
                        + np.minimum(k + c, nm - 1))
-        wts, idx = np.stack(wts, axis=1), np.stack(idx, axis=1)     # (n, 8), row-major CSR
-        keep = wts != 0.0
-        indptr = np.concatenate([[0], np.cumsum(keep.sum(axis=1))])
-        weights = csr_matrix((wts[keep], idx[keep], indptr), shape=(teff.size, nt * ng * nm))
-        out = np.asarray(weights @ self._flat())
-        for a, (d1, d2) in zip(self.nuisance, self._responses()):
+        wts, idx = np.stack(wts, axis=1), np.stack(idx, axis=1)     # (n, 8)
+        # the terms of the log flux: log10 F, then x D1 and x^2 (D2 / 2) per nuisance axis
+        # sampled (rows of _stack); an axis not sampled has x = 0 and is left out
+        terms, powers = [0], [np.ones(teff.size)]
+        for q, a in enumerate(self.nuisance):
             x = None if nuisance is None else nuisance.get(a.name)
-            if x is None:
-                continue
-            x = np.broadcast_to(np.asarray(x, float), (teff.size,))[:, None]
-            out += x * np.asarray(weights @ d1) + (0.5 * x * x) * np.asarray(weights @ d2)
-        return out
+            if x is not None:
+                x = np.broadcast_to(np.asarray(x, float), (teff.size,))
+                terms += [1 + 2 * q, 2 + 2 * q]
+                powers += [x, x * x]
+        powers = np.stack(powers, axis=1)                            # (n, n_terms)
+        # Zero-weight corners are dropped, so a point on a face next to a hole stays finite.
+        keep = wts != 0.0
+        rows = np.nonzero(keep)[0]
+        models, col = np.unique(idx[keep], return_inverse=True)
+        stack = self._stack()
+        if models.size <= _DENSE_MODELS:
+            # Walkers cluster in a few grid cells: a dense (n x models*terms) weight matrix
+            # times the gathered rows is one BLAS product, ~10x faster than a sparse one
+            # (bench/bench_speed.py).
+            w = np.bincount(rows * models.size + col, wts[keep],
+                            minlength=teff.size * models.size).reshape(teff.size, -1)
+            coef = (w[:, :, None] * powers[:, None, :]).reshape(teff.size, -1)
+            rows_used = stack[models[:, None], np.asarray(terms)[None, :]]
+            return coef @ rows_used.reshape(-1, self.wave.size)
+        # spread-out walkers (early burn-in): one sparse product with 8 corners per row
+        nk = stack.shape[1]
+        cols = (idx[keep][:, None] * nk + np.asarray(terms)[None, :]).ravel()
+        vals = (wts[keep][:, None] * powers[rows]).ravel()
+        indptr = np.concatenate([[0], np.cumsum(keep.sum(axis=1) * len(terms))])
+        weights = csr_matrix((vals, cols, indptr), shape=(teff.size, stack.shape[0] * nk))
+        return np.asarray(weights @ stack.reshape(-1, self.wave.size))
 
-    def _responses(self):
-        """[(D1, D2)] flat (n_models, n_wave) per nuisance axis, made once."""
+    def _stack(self):
+        """(n_models, 1 + 2 n_nuisance, n_wave) float64, made once: log10 F, then D1 and
+        D2 / 2 of each nuisance axis (teffmc.photosphere.nuisance.responses)."""
         from .nuisance import responses
 
-        cached = self.__dict__.get("_flat_responses")
-        if cached is None:
-            base = self.log_flux.reshape(-1, self.wave.size).astype(float)
-            cached = []
-            for a in self.nuisance:
-                d1, d2 = responses(base, _Flat(a, self.wave.size))
-                cached.append((np.ascontiguousarray(d1), np.ascontiguousarray(d2)))
-            object.__setattr__(self, "_flat_responses", cached)
-        return cached
-
-    def _flat(self):
-        """log_flux as a C-contiguous float64 (n_models, n_wave) matrix, made once."""
-        flat = self.__dict__.get("_flat_log_flux")
-        if flat is None:
-            flat = np.ascontiguousarray(self.log_flux.reshape(-1, self.wave.size), dtype=float)
-            object.__setattr__(self, "_flat_log_flux", flat)
-        return flat
+        stack = self.__dict__.get("_term_stack")
+        if stack is None:
+            nw = self.wave.size
+            stack = np.empty((self.log_flux[..., 0].size, 1 + 2 * len(self.nuisance), nw))
+            stack[:, 0] = self.log_flux.reshape(-1, nw)
+            for q, a in enumerate(self.nuisance):
+                d1, d2 = responses(stack[:, 0], _Flat(a, nw))
+                stack[:, 1 + 2 * q] = d1
+                stack[:, 2 + 2 * q] = 0.5 * d2
+            object.__setattr__(self, "_term_stack", stack)
+        return stack
 
     def interpolate(self, teff, logg, mh, nuisance=None):
         """Surface F_lambda [erg s^-1 cm^-2 Angstrom^-1] at a batch of points, (n, n_wave)."""
