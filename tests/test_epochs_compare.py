@@ -95,7 +95,7 @@ def test_compare_same_data_writes_tables_and_figure(two_runs, capsys):
     assert abs(second["elpd_diff"]) < 2 * max(second["se_diff"], 0.5)
     for f in ("hypotheses.png", "hypotheses.pdf", "budget.png", "delta_teff.png"):
         assert (tmp / "cmp" / f).stat().st_size > 10_000, f
-    assert "run_a" in (tmp / "cmp" / "compare_table.tex").read_text()
+    assert r"run\_a" in (tmp / "cmp" / "compare_table.tex").read_text()  # escaped _
     assert (tmp / "cmp" / "report.html").stat().st_size > 10_000
     assert (tmp / "cmp" / "compare.ecsv").exists()
 

@@ -209,3 +209,29 @@ def test_survey_latex_table_compiles(survey, tmp_path):
             continue
         med, lo, hi = (float(row[f"teff_{k}"]) for k in ("median", "p16", "p84"))
         assert round_value(med, hi - med, med - lo).text in tex
+
+
+def test_survey_figures_are_journal_ready(survey):
+    """The survey's summary plots get the checks of every other figure
+    (tests/test_report_output.py): no overlapping text, units, column width."""
+    import matplotlib.pyplot as plt
+
+    from teffmc.report import style, survey as survey_mod
+    from test_report_output import _axis_labels_ok
+
+    rows, names = survey_mod.survey_rows(survey)
+    checked = []  # each figure checked where survey_figures turns it into PNG
+    png = survey_mod._png
+
+    def check(fig):
+        checked.append((fig.get_figwidth(), style.text_overlaps(fig), _axis_labels_ok(fig)))
+        return png(fig)
+
+    try:
+        survey_mod._png = check
+        images = survey_mod.survey_figures(rows, names)
+    finally:
+        survey_mod._png = png
+    assert set(images) == {"teff_hist", "teff_av"}
+    assert checked == [(style.COLUMN, [], [])] * 2
+    plt.close("all")
