@@ -4,7 +4,7 @@ Run: ``.venv/bin/python bench/bench_memory.py [--pixels 200000] [--grid builtin]
 [--max-steps 400]``. Simulates an INVENTED star (teffmc.simulate) whose spectrum has
 ``--pixels`` pixels over 4000-9500 A (2 pixels per resolution element, so R follows from
 the pixel count) plus BVRIJHKs photometry, fits it with ``teffmc fit`` in a child process
-with the default settings (correlated mismatch term, one BLAS thread) and a short chain,
+with the default settings (correlated mismatch term, 48 walkers, one BLAS thread) and a short chain,
 and prints the fit process's own peak RSS (os.wait4) and the size of posterior.nc.
 Memory does not grow with the chain beyond the stored draws (posterior.nc keeps at most
 8000), so a short chain measures the peak of a long one. Issue acceptance: 200,000 pixels
@@ -47,6 +47,7 @@ def main(argv=None):
     ap.add_argument("--pixels", type=int, default=200_000)
     ap.add_argument("--grid", default="builtin", choices=("builtin", "blackbody"))
     ap.add_argument("--max-steps", type=int, default=400)
+    ap.add_argument("--walkers", type=int, default=48)
     ap.add_argument("--keep", default=None, help="folder to keep the run in")
     ap.add_argument("--simulate-into", default=None, help=argparse.SUPPRESS)
     a = ap.parse_args(argv)
@@ -69,7 +70,7 @@ def main(argv=None):
         logg = {{ fixed = 0.0 }}
         mh = {{ fixed = 0.0 }}
         [sampler]
-        n_walkers = 24
+        n_walkers = {a.walkers}
         min_steps = {a.max_steps}
         max_steps = {a.max_steps}
         check_every = 100
@@ -91,8 +92,8 @@ def main(argv=None):
     wall = time.perf_counter() - t0
     peak_kb = usage.ru_maxrss
     nc = tmp / "run" / "posterior.nc"
-    print(f"pixels {a.pixels} (R {resolution:.0f}), grid {a.grid}, {a.max_steps} steps x 24 "
-          f"walkers: exit {res.returncode}, wall {wall:.0f} s")
+    print(f"pixels {a.pixels} (R {resolution:.0f}), grid {a.grid}, {a.max_steps} steps x "
+          f"{a.walkers} walkers: exit {res.returncode}, wall {wall:.0f} s")
     print(f"peak RSS of the fit: {peak_kb / 2**20:.2f} GiB")
     if nc.exists():
         print(f"posterior.nc: {nc.stat().st_size / 2**20:.0f} MiB")
