@@ -18,7 +18,7 @@ hang. Then ``--cli`` corrupted files and as many mutated configs run through
 
 Prints the counts, the distinct refusal keys and every crash or hang (with its case).
 
-Measured: see the report of issue 13 (README "Bad input").
+Measured: see DEVELOPERS.md, "Fuzzing".
 """
 
 import argparse
