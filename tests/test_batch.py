@@ -10,7 +10,6 @@ import signal
 import socket
 import subprocess
 import sys
-import textwrap
 import time
 from pathlib import Path
 
@@ -26,32 +25,10 @@ from teffmc.config import ModelSpec
 from teffmc.photosphere import load_grid
 from teffmc.simulate import simulate_epoch
 
+from small_star import small_star_config
+
 STARS = ("alpha", "beta", "gamma")
 STATUS = {"alpha": "ok", "beta": "not_converged", "gamma": "failed"}
-
-
-def _config(name, *, data, max_steps):
-    # blackbody grid, a short R = 100 spectrum and 7 bands, Teff and A_V free: a converged
-    # run takes a few seconds. beta's 200 steps cannot pass the stop rule (it needs two
-    # tau estimates), so it is reported as not converged.
-    return textwrap.dedent(f"""\
-        grid = "blackbody"
-        [[epoch]]
-        photometry = "{data}_phot.ecsv"
-        spectra = [{{ file = "{data}_spec.ecsv", resolution = 100.0, mismatch = "none" }}]
-        [priors]
-        teff = {{ dist = "uniform", low = 3000, high = 6000 }}
-        logg = {{ fixed = 0.0 }}
-        mh = {{ fixed = 0.0 }}
-        theta = {{ fixed = 2.0 }}
-        [sampler]
-        n_walkers = 16
-        max_steps = {max_steps}
-        min_steps = 200
-        check_every = 200
-        n_starts = 4
-        seed = 2
-        """)
 
 
 @pytest.fixture(scope="module")
@@ -62,9 +39,9 @@ def stars(tmp_path_factory):
         truth = {"teff": teff, "logg": 0.0, "mh": 0.0, "a_v": 0.5, "r_v": 3.1, "theta": 2.0}
         simulate_epoch(d, name, grid, ModelSpec(), truth, resolution=100.0,
                        wave_range=(4500.0, 9000.0), rng=np.random.default_rng(1))
-    (d / "alpha.toml").write_text(_config("alpha", data="alpha", max_steps=3000))
-    (d / "beta.toml").write_text(_config("beta", data="beta", max_steps=200))
-    (d / "gamma.toml").write_text(_config("gamma", data="nowhere", max_steps=3000))
+    (d / "alpha.toml").write_text(small_star_config("alpha", 3000))
+    (d / "beta.toml").write_text(small_star_config("beta", 200))
+    (d / "gamma.toml").write_text(small_star_config("nowhere", 3000))
     return d
 
 
@@ -375,7 +352,7 @@ def test_attached_cluster_gives_the_same_table(first, stars, dask_cluster):
 def slow(stars):
     """A star whose sampling lasts long enough to be cut off after its first checkpoint,
     and its uninterrupted run (one worker)."""
-    (stars / "slow.toml").write_text(_config("slow", data="alpha", max_steps=3000)
+    (stars / "slow.toml").write_text(small_star_config("alpha", 3000)
                                      .replace("min_steps = 200", "min_steps = 2000"))
     ref = stars.parent / "slow_reference"
     t = teffmc.fit_many([stars / "slow.toml"], ref)
@@ -485,7 +462,7 @@ def test_a_tenth_of_configs_broken(tmp_path):
         if k == 7:  # broken: not TOML
             c.write_text('grid = "blackbody"\n[priors\n')
         else:  # the same data and seed: every row must hold the same numbers
-            c.write_text(_config(c.stem, data="data", max_steps=3000)
+            c.write_text(small_star_config("data", 3000)
                          .replace('grid = "blackbody"', f'grid = "{grid_file}"'))
         configs.append(c)
     out = tmp_path / "out"

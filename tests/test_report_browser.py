@@ -10,7 +10,6 @@ in the test extra. These tests never skip.
 
 import json
 import os
-import textwrap
 from pathlib import Path
 
 import numpy as np
@@ -23,6 +22,8 @@ from teffmc.batch import fit_many
 from teffmc.config import ModelSpec
 from teffmc.photosphere import load_grid
 from teffmc.simulate import simulate_epoch
+
+from small_star import small_star_config
 
 CHROMIUM, DRIVER = "/usr/bin/chromium", "/usr/bin/chromedriver"
 
@@ -101,28 +102,6 @@ def test_comparison_report_in_chromium(browser, report_run, tmp_path):
     browser.save_screenshot(str(_artefacts(tmp_path) / "comparison.png"))
 
 
-def _star_config(data, max_steps):
-    # as tests/test_batch.py: blackbody grid, R = 100, Teff and A_V free, a few seconds
-    return textwrap.dedent(f"""\
-        grid = "blackbody"
-        [[epoch]]
-        photometry = "{data}_phot.ecsv"
-        spectra = [{{ file = "{data}_spec.ecsv", resolution = 100.0, mismatch = "none" }}]
-        [priors]
-        teff = {{ dist = "uniform", low = 3000, high = 6000 }}
-        logg = {{ fixed = 0.0 }}
-        mh = {{ fixed = 0.0 }}
-        theta = {{ fixed = 2.0 }}
-        [sampler]
-        n_walkers = 16
-        max_steps = {max_steps}
-        min_steps = 200
-        check_every = 200
-        n_starts = 4
-        seed = 2
-        """)
-
-
 @pytest.fixture(scope="module")
 def survey(tmp_path_factory):
     """A batch of four invented stars: three fitted (one stops unconverged), one failed."""
@@ -135,9 +114,9 @@ def survey(tmp_path_factory):
                        wave_range=(4500.0, 9000.0), rng=np.random.default_rng(1))
     configs = []
     for name, (_, _, steps) in stars.items():
-        (d / f"{name}.toml").write_text(_star_config(name, steps))
+        (d / f"{name}.toml").write_text(small_star_config(name, steps))
         configs.append(d / f"{name}.toml")
-    (d / "s4.toml").write_text(_star_config("nowhere", 3000))
+    (d / "s4.toml").write_text(small_star_config("nowhere", 3000))
     out = d / "batch"
     fit_many([*configs, d / "s4.toml"], out, workers=1, quiet=True)
     return out
