@@ -197,13 +197,15 @@ class SpectrumChannel:
 def _native_span(grid, wave, resolution, fwhm_A):
     """The grid's own pixels covering ``wave`` with the line-spread's reach, or None
     (an analytic photosphere has no pixels of its own)."""
+    from .observe.lsf import FWHM_PER_SIGMA
+
     if not hasattr(grid, "log_flux"):
         return None
     gw = np.asarray(grid.wave, float)
     if resolution is not None:
-        reach = 5.0 * wave[-1] / resolution / 2.3548
+        reach = 5.0 * wave[-1] / resolution / FWHM_PER_SIGMA
     else:
-        reach = 5.0 * (fwhm_A or 0.0) / 2.3548
+        reach = 5.0 * (fwhm_A or 0.0) / FWHM_PER_SIGMA
     i0 = max(int(np.searchsorted(gw, wave[0] - reach)) - 2, 0)
     i1 = min(int(np.searchsorted(gw, wave[-1] + reach)) + 2, gw.size)
     return gw[i0:i1]
