@@ -69,7 +69,7 @@ def _same(cell_value, number):
 
 
 def test_run_report_in_chromium(browser, report_run, tmp_path):
-    run = report_run[0] / "veil"
+    run = report_run / "veil"
     imgs = _open(browser, run / "report.html")
     assert {i.get_attribute("alt") for i in imgs} >= {"fit", "corner", "budget",
                                                        "delta_teff", "diagnostics"}
@@ -95,7 +95,7 @@ def test_run_report_in_chromium(browser, report_run, tmp_path):
 
 
 def test_comparison_report_in_chromium(browser, report_run, tmp_path):
-    imgs = _open(browser, report_run[0] / "report.html")
+    imgs = _open(browser, report_run / "report.html")
     assert "hypotheses" in {i.get_attribute("alt") for i in imgs}
     links = browser.find_elements(By.CSS_SELECTOR, "#comparison-table a")
     assert {a.text for a in links} == {"veil", "cooling"}

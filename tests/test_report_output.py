@@ -34,7 +34,7 @@ def _sha(path):
 
 
 def test_fit_writes_every_report_file(report_run):
-    top, _ = report_run
+    top = report_run
     for hyp in ("veil", "cooling"):
         run = top / hyp
         for f in FIG:
@@ -51,7 +51,7 @@ def test_fit_writes_every_report_file(report_run):
 
 def test_pdf_figures_are_vector(report_run):
     """Text in the PDF is text (pdftotext reads the axis labels), not a picture."""
-    fit_pdf = report_run[0] / "veil" / "fit.pdf"
+    fit_pdf = report_run / "veil" / "fit.pdf"
     txt = subprocess.run(["pdftotext", str(fit_pdf), "-"], capture_output=True, text=True,
                          check=True, timeout=60).stdout
     assert "wavelength [µm]" in txt and "residual [σ]" in txt
@@ -98,7 +98,7 @@ def _shares_label(fig, ax, axis):
 
 @pytest.fixture(scope="module")
 def figures(report_run):
-    top, _ = report_run
+    top = report_run
     comparison = compared_runs(top)
     run = top / "veil"
     dt, summary = post_mod.load_run(run)
@@ -155,7 +155,7 @@ def test_masked_ranges_are_shaded(report_run):
     """The config masks 6800-7000 Angstrom: the fit figure shades a gap covering it."""
     from teffmc.report.figures import masked_gaps, panels_from_posterior
 
-    dt, _ = post_mod.load_run(report_run[0] / "veil")
+    dt, _ = post_mod.load_run(report_run / "veil")
     spec = [p for p in panels_from_posterior(dt) if p["kind"] == "spectrum"][0]
     gaps = masked_gaps(spec["x"])
     assert any(lo <= 6800.0 + 20 and hi >= 7000.0 - 20 for lo, hi in gaps), gaps
@@ -175,7 +175,7 @@ def test_methods_match_the_run_files(report_run, hyp):
     """Acceptance 4 on the fixture (the demo is checked the same way, DEVELOPERS.md): every
     prior, the grid checksum, the stop rule and the achieved R-hat/ESS, parsed from
     run.toml and summary.json, appear in methods.md and methods.tex."""
-    run = report_run[0] / hyp
+    run = report_run / hyp
     record, summary = _run_files(run)
     md = (run / "methods.md").read_text(encoding="utf-8")
     tex = (run / "methods.tex").read_text(encoding="utf-8")
@@ -221,7 +221,7 @@ def test_methods_match_the_run_files(report_run, hyp):
 
 
 def test_references_hold_every_cited_key(report_run):
-    run = report_run[0] / "veil"
+    run = report_run / "veil"
     tex = (run / "methods.tex").read_text(encoding="utf-8")
     bib = (run / "references.bib").read_text(encoding="utf-8")
     cited = {k.strip() for group in re.findall(r"\\citep\{([^}]*)\}", tex)
@@ -235,7 +235,7 @@ def test_references_hold_every_cited_key(report_run):
         assert key in entries, key
     assert "from memory" in bib
     # the cooling hypothesis has no veil: no Mie citation
-    cool = (report_run[0] / "cooling" / "references.bib").read_text(encoding="utf-8")
+    cool = (report_run / "cooling" / "references.bib").read_text(encoding="utf-8")
     assert "@software{miepython" not in cool
 
 
@@ -243,7 +243,7 @@ def test_methods_tex_compiles_with_its_bibliography(report_run, tmp_path):
     """methods.tex + references.bib through pdflatex and bibtex (natbib, author-year)."""
     import shutil
 
-    run = report_run[0] / "veil"
+    run = report_run / "veil"
     for f in ("methods.tex", "references.bib"):
         shutil.copy(run / f, tmp_path / f)
     (tmp_path / "doc.tex").write_text(
@@ -270,7 +270,7 @@ def test_report_command_writes_the_formats_asked_and_keeps_the_sources(report_ru
     import shutil
 
     run = tmp_path / "copy"
-    shutil.copytree(report_run[0] / "veil", run)
+    shutil.copytree(report_run / "veil", run)
     for f in ("fit.pdf", "fit.png", "methods.md", "report.html", "table.tex"):
         (run / f).unlink()
     sources = {f: _sha(run / f) for f in ("summary.json", "posterior.nc", "run.toml",
@@ -290,7 +290,7 @@ def test_run_table_compiles_and_shows_summary_values(report_run, tmp_path):
     summary.json."""
     from teffmc.report.latex import round_value
 
-    run = report_run[0] / "veil"
+    run = report_run / "veil"
     (tmp_path / "doc.tex").write_text(
         r"\documentclass{article}\usepackage[T1]{fontenc}\begin{document}"
         + (run / "table.tex").read_text(encoding="utf-8") + r"\end{document}",
