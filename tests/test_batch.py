@@ -183,14 +183,14 @@ def test_redo_fits_again(stars, tmp_path):
 
 
 def _crash_one(config, out, redo):
-    """Stand-in for batch._fit_star: the worker process dies on star 'beta'."""
+    """Stand-in for batch.task.fit_star: the worker process dies on star 'beta'."""
     if config.endswith("beta.toml"):
         os._exit(3)
-    return batch._fit_star(config, out, redo)
+    return batch.task.fit_star(config, out, redo)
 
 
 def test_a_dying_worker_fails_only_its_star(stars, tmp_path, monkeypatch):
-    monkeypatch.setattr(batch, "_TASK", _crash_one)
+    monkeypatch.setattr(batch.engine, "TASK", _crash_one)
     out = tmp_path / "crash"
     t = teffmc.fit_many([stars / "gamma.toml", stars / "beta.toml"], out, workers=2)
     assert list(t["status"]) == ["failed", "failed"]
@@ -205,7 +205,7 @@ def test_internal_error_gives_one_line_and_a_traceback(stars, tmp_path, monkeypa
         raise RuntimeError("something\nbroke")
 
     monkeypatch.setattr(teffmc.run, "fit", broken)
-    res = batch._fit_star(str(stars / "alpha.toml"), str(tmp_path / "alpha"), False)
+    res = batch.task.fit_star(str(stars / "alpha.toml"), str(tmp_path / "alpha"), False)
     assert not res["ok"]
     assert res["reason"] == "internal error: RuntimeError: something broke"
     assert "Traceback" in res["traceback"]
@@ -237,7 +237,7 @@ def test_bad_scheduler_input(stars, tmp_path, capsys):
 
 
 def test_unreachable_scheduler_is_one_line_exit_1(stars, tmp_path, capsys, monkeypatch):
-    monkeypatch.setattr(batch, "CONNECT_TIMEOUT", 2.0)
+    monkeypatch.setattr(batch.engine, "CONNECT_TIMEOUT", 2.0)
     addr = f"tcp://127.0.0.1:{_free_port()}"  # nobody listens there
     rc = main(["batch", str(stars / "alpha.toml"), "--out", str(tmp_path / "o"),
                "--scheduler", addr])
