@@ -119,7 +119,7 @@ def _alarm(signum, frame):
     ("distance_pc", Prior("normal", mean=50.0, sd=100.0), (50.0, 100.0)),
 ])
 def test_derived_distance_draws_the_positive_part(tmp_path, phot, key, prior, truth):
-    from teffmc.pipeline import derived_quantities
+    from teffmc.derived import derived_quantities
     from teffmc.run import prepare
 
     cfg = replace(load_config(_config(tmp_path, phot)), **{key: prior})

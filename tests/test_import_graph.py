@@ -18,7 +18,7 @@ CORE = ("teffmc.photosphere", "teffmc.dust", "teffmc.observe", "teffmc.model",
         "teffmc.likelihood")
 UPPER = ("teffmc.config", "teffmc.run", "teffmc.pipeline", "teffmc.report", "teffmc.rereport",
          "teffmc.posterior", "teffmc.batch", "teffmc.cli", "teffmc.demo", "teffmc.compare",
-         "teffmc.sample", "teffmc.stacking_run")
+         "teffmc.sample", "teffmc.sampling_coords", "teffmc.derived", "teffmc.stacking_run")
 FORBIDDEN_EXTERNAL = ("arviz", "matplotlib", "emcee", "xarray", "tomllib")
 # modules of the core that read or write files, by design: data readers, the grid file
 # format, the grid importer and the optics-table cache. Everything else in the core
