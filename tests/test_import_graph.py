@@ -24,7 +24,7 @@ FORBIDDEN_EXTERNAL = ("arviz", "matplotlib", "emcee", "xarray", "tomllib")
 # format, the grid importer and the optics-table cache. Everything else in the core
 # must not touch files.
 FILE_IO = {"teffmc.observe._readers", "teffmc.observe._text", "teffmc.observe.filters",
-           "teffmc.observe.photometry", "teffmc.photosphere.grid",
+           "teffmc.observe.photometry", "teffmc.photosphere.gridfile",
            "teffmc.photosphere.importer", "teffmc.dust.cache"}
 IO_MODULES = ("h5py", "netCDF4", "shutil", "pickle")
 PATH_IO = ("open", "read_text", "write_text", "read_bytes", "write_bytes", "unlink", "mkdir")
