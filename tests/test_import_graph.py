@@ -16,9 +16,10 @@ PKG = Path(__file__).resolve().parents[1] / "teffmc"
 # the numerical core and what it must not import
 CORE = ("teffmc.photosphere", "teffmc.dust", "teffmc.observe", "teffmc.model",
         "teffmc.likelihood")
-UPPER = ("teffmc.config", "teffmc.run", "teffmc.pipeline", "teffmc.report", "teffmc.rereport",
-         "teffmc.posterior", "teffmc.batch", "teffmc.cli", "teffmc.demo", "teffmc.compare",
-         "teffmc.sample", "teffmc.sampling_coords", "teffmc.derived", "teffmc.stacking_run")
+UPPER = ("teffmc.config", "teffmc.config_spec", "teffmc.run", "teffmc.pipeline",
+         "teffmc.report", "teffmc.rereport", "teffmc.posterior", "teffmc.batch", "teffmc.cli",
+         "teffmc.demo", "teffmc.compare", "teffmc.sample", "teffmc.sampling_coords",
+         "teffmc.derived", "teffmc.stacking_run")
 FORBIDDEN_EXTERNAL = ("arviz", "matplotlib", "emcee", "xarray", "tomllib")
 # modules of the core that read or write files, by design: data readers, the grid file
 # format, the grid importer and the optics-table cache. Everything else in the core
