@@ -22,7 +22,8 @@ from teffmc.simulate import simulate_epoch
 
 TRUTH = {"teff": 3700.0, "logg": 0.5, "mh": -0.2, "a_v": 0.5, "r_v": 3.1, "theta": 5.0,
          "veil_tau": 1.0, "veil_cover": 0.5, "grain_radius": 0.5, "veil_scatter": 0.5,
-         "mismatch_amp": 0.03, "mismatch_scale": 1000.0, "tio_scale": 1.2, "haze_scale": 0.9}
+         "mismatch_amp": 0.03, "mismatch_scale": 1000.0, "mismatch_white": 0.01,
+         "tio_scale": 1.2, "haze_scale": 0.9}
 BANDS = ["bessell-U", "bessell-B", "bessell-V", "bessell-R", "bessell-I", "twomass-J",
          "twomass-H", "twomass-Ks", "sdss2010-g", "sdss2010-r"]
 

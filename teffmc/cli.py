@@ -138,18 +138,28 @@ def _cmd_grid(args):
 
 
 def build_parser():
+    """The argparse parser of every command (one `_add_<command>` each)."""
     p = argparse.ArgumentParser(prog="teffmc", description=(
         "Effective temperature of a cool star with honest uncertainties, jointly with "
         "interstellar extinction and a circumstellar dust veil."))
     p.add_argument("--version", action="version", version=f"teffmc {__version__}")
     sub = p.add_subparsers(dest="command", required=True)
+    for add in (_add_demo, _add_fit, _add_batch, _add_compare, _add_report, _add_grid):
+        add(sub)
+    return p
 
+
+def _add_demo(sub):
+    """`teffmc demo`."""
     d = sub.add_parser("demo", help="make the invented demo star's data and fit it")
     d.add_argument("--out", default="teffmc-demo",
                    help="folder for the demo (default: %(default)s)")
     d.add_argument("--quiet", action="store_true", help="no progress output")
     d.set_defaults(func=_cmd_demo)
 
+
+def _add_fit(sub):
+    """`teffmc fit`."""
     f = sub.add_parser("fit", help="fit the data described by a TOML config file")
     f.add_argument("config", help="TOML config file")
     f.add_argument("--out", help="run folder (default: run-<config name> beside the config)")
@@ -160,6 +170,9 @@ def build_parser():
     f.add_argument("--quiet", action="store_true", help="no progress bar or log lines")
     f.set_defaults(func=_cmd_fit)
 
+
+def _add_batch(sub):
+    """`teffmc batch`."""
     b = sub.add_parser(
         "batch", help="fit many stars, one config each, into OUT/<config stem>/",
         description="Fit many stars (one config file each) as tasks on a Dask cluster (an "
@@ -193,12 +206,18 @@ def build_parser():
     b.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
     b.set_defaults(func=_cmd_batch)
 
+
+def _add_compare(sub):
+    """`teffmc compare`."""
     c = sub.add_parser("compare", help="compare hypotheses fitted to the same data")
     c.add_argument("run_dirs", nargs="+", help="run folders written by `teffmc fit`")
     c.add_argument("--out", help="folder for compare.json, compare.ecsv and the comparison's "
                    "report (hypotheses/budget figures, compare_table.tex, report.html)")
     c.set_defaults(func=_cmd_compare)
 
+
+def _add_report(sub):
+    """`teffmc report`."""
     r = sub.add_parser("report", help="write the report files of a finished run (figures, "
                        "paper tables, methods paragraph, report.html)")
     r.add_argument("run_dir", help="a run folder, or a folder of hypotheses or grids")
@@ -210,6 +229,9 @@ def build_parser():
                    "self-contained); summary.ecsv is always rewritten")
     r.set_defaults(func=_cmd_report)
 
+
+def _add_grid(sub):
+    """`teffmc grid info|build|import`."""
     g = sub.add_parser("grid", help="build, import or describe a photosphere grid")
     gs = g.add_subparsers(dest="grid_cmd", required=True)
     gi = gs.add_parser("info", help="describe a grid file")
@@ -228,7 +250,6 @@ def build_parser():
     gm.add_argument("--wave-unit", help="wavelength unit when the files do not say")
     gm.add_argument("--flux-unit", help="flux-density unit when the files do not say")
     g.set_defaults(func=_cmd_grid)
-    return p
 
 
 def _one_line_warnings(message, category, filename, lineno, file=None, line=None):

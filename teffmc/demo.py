@@ -124,8 +124,7 @@ def run_demo(out, *, quiet=False):
     from .compare import compare_runs
     from .config import load_config
     from .run import fit_one, summary_to_text
-
-    from .run import check_out_folder
+    from .runfolder import check_out_folder
 
     out = Path(out).resolve()
     if out.exists() and (out / "data" / "ficta.toml").exists():

@@ -108,6 +108,48 @@ def _check_limits(base, prior, model, file, key):
                              else ""), file=file, key=f"priors.{key}", value=(plo, phi))
 
 
+def _checked_priors(config, defaults, sibling, labels, file):
+    """The default priors overridden by the config's, each checked: a parameter of this
+    model (a sibling hypothesis's is skipped), a known epoch label, no per-epoch prior of
+    a shared parameter, > 0 where it must be, within the parameter's limits."""
+    multi = len(labels) > 1
+    priors = dict(defaults)
+    for key, prior in config.priors.items():
+        base, _, label = key.partition("@")
+        if base in sibling and base not in defaults:
+            continue
+        if base not in defaults:
+            raise ConfigError(f"not a parameter of this model (parameters: "
+                              f"{', '.join(defaults)})", file=file, key=f"priors.{key}",
+                              value=key)
+        if label and label not in labels:
+            raise ConfigError(f"no epoch labelled {label!r} (epochs: {', '.join(labels)})",
+                              file=file, key=f"priors.{key}", value=key)
+        if label and multi and base in config.shared:
+            raise ConfigError(f"{base} is shared by all epochs: give priors.{base}, or "
+                              f"remove {base} from shared", file=file, key=f"priors.{key}",
+                              value=key)
+        if base in POSITIVE and prior.support[0] <= 0:
+            raise ConfigError(f"{base} must be > 0 but the prior reaches "
+                              f"{prior.support[0]:g}", file=file, key=f"priors.{key}",
+                              value=prior.support[0])
+        _check_limits(base, prior, config.model, file, key)
+        priors[base if label and not multi else key] = prior
+    return priors
+
+
+def _check_grid_ranges(priors, grid_bounds, file):
+    """The priors of the grid's axes stay inside the grid."""
+    for axis in ("teff", "logg", "mh"):
+        for key in [k for k in priors if k.partition("@")[0] == axis]:
+            lo, hi = priors[key].support
+            glo, ghi = grid_bounds[axis]
+            if lo < glo or hi > ghi:
+                raise ConfigError(
+                    f"prior range [{lo:g}, {hi:g}] reaches outside the grid's "
+                    f"[{glo:g}, {ghi:g}]", file=file, key=f"priors.{key}", value=(lo, hi))
+
+
 class ParameterSpace:
     """The mapping between a flat sampled vector and named per-epoch parameters."""
 
@@ -123,42 +165,13 @@ class ParameterSpace:
                                      if getattr(config.model, "grid_nuisance", True))
         file = str(config.path)
         labels = [e.label for e in config.epochs]
-        multi = len(labels) > 1
         for s in config.shared:
             if s not in known and s not in NUISANCE_PARAMETERS:
                 raise ConfigError(f"{s!r} is not a parameter name (names: "
                                   f"{', '.join(ALL_PARAMETERS)})",
                                   file=file, key="shared", value=s)
-        priors = dict(defaults)
-        for key, prior in config.priors.items():
-            base, _, label = key.partition("@")
-            if base in sibling and base not in defaults:
-                continue
-            if base not in defaults:
-                raise ConfigError(f"not a parameter of this model (parameters: "
-                                  f"{', '.join(defaults)})", file=file, key=f"priors.{key}",
-                                  value=key)
-            if label and label not in labels:
-                raise ConfigError(f"no epoch labelled {label!r} (epochs: {', '.join(labels)})",
-                                  file=file, key=f"priors.{key}", value=key)
-            if label and multi and base in config.shared:
-                raise ConfigError(f"{base} is shared by all epochs: give priors.{base}, or "
-                                  f"remove {base} from shared", file=file, key=f"priors.{key}",
-                                  value=key)
-            if base in POSITIVE and prior.support[0] <= 0:
-                raise ConfigError(f"{base} must be > 0 but the prior reaches "
-                                  f"{prior.support[0]:g}", file=file, key=f"priors.{key}",
-                                  value=prior.support[0])
-            _check_limits(base, prior, config.model, file, key)
-            priors[base if label and not multi else key] = prior
-        for axis in ("teff", "logg", "mh"):
-            for key in [k for k in priors if k.partition("@")[0] == axis]:
-                lo, hi = priors[key].support
-                glo, ghi = grid_bounds[axis]
-                if lo < glo or hi > ghi:
-                    raise ConfigError(
-                        f"prior range [{lo:g}, {hi:g}] reaches outside the grid's "
-                        f"[{glo:g}, {ghi:g}]", file=file, key=f"priors.{key}", value=(lo, hi))
+        priors = _checked_priors(config, defaults, sibling, labels, file)
+        _check_grid_ranges(priors, grid_bounds, file)
         self.labels = labels
         self.multi = len(labels) > 1
         self.names, self.priors, self._slots = [], [], {}

@@ -11,22 +11,19 @@ import numpy as np
 
 from . import __version__
 from . import posterior as post_mod
-from .budget import dimming_budget
-from .derived import bolometric
+from .derived import chunked, derived_quantities
 from .goodness import cautions as gof_cautions
-from .goodness import BLOCK_VALUES, goodness_of_fit
+from .goodness import goodness_of_fit
 from .likelihood import pixel_variance
-from .model import Dust, band_pixels, observed_flux
-from .priors import Prior
 from .provenance import data_labels, run_provenance
 from .report import write_summary
 from .report.output import write_run_products
 from .report.tables import strict_json
+from .sampling_coords import SamplerCoordinates
 from .tomlout import dumps_toml
 
-__all__ = ["sample_posterior", "finish_run", "derived_quantities", "VBand"]
+__all__ = ["sample_posterior", "finish_run", "hole_cautions", "loo_draws", "data_checksum"]
 
-CHUNK = 512
 MAX_STORED_DRAWS = 8000   # posterior draws kept in posterior.nc (all walkers together)
 MAX_GOF_DRAWS = 200       # draws for the goodness-of-fit numbers
 MAX_LOO_DRAWS = 2000      # draws with pointwise log-likelihood (PSIS-LOO works well here)
@@ -34,91 +31,6 @@ MIN_LOO_DRAWS = 200       # ... and never fewer (very long spectra)
 MAX_POINTWISE_VALUES = 50_000_000  # draws x points kept for LOO (200 MB as float32)
 CAUTION_GRID = ("The built-in grid comes from teffmc's own approximate LTE synthesis; "
                 "for publication-grade temperatures import a validated model grid.")
-
-
-class SamplerCoordinates:
-    """The sampler's coordinates u; draws, summaries and files stay in x.
-
-    * ln x for every parameter with a log-uniform prior: such a prior spanning decades
-      is flat in ln x but piles up at the low end in x, and the ensemble moves
-      (differences and stretches of walker positions) then mix slowly -- measured on the
-      demo with a correlated mismatch term: tau of ``mismatch_scale`` 478 steps sampled
-      in x, ~70-100 in ln x.
-    * the veil's covering fraction c and optical depth tau, when both are free in an
-      epoch, as (c, e) with e = -ln(1 - d) and d = c (1 - exp(-tau)) the fraction of
-      the star's light the veil removes at 0.55 micron (before scattering): the data
-      measure e almost directly, while c and tau trade along the curved ridge
-      c (1 - e^-tau) = d, which the ensemble's straight-line moves cross slowly (tau
-      ~300 steps in the issue). In e the dimming is a magnitude-like quantity, so its
-      trade with the angular diameter (2 ln theta - e ~ const for grey grains) is a
-      straight line too. d = 1 - e^-e, tau = -ln(1 - d / c), 0 <= d < c.
-
-    The density in u carries the Jacobian, log p(u) = log p(x(u)) + log |dx/du| with
-    log |dx/du| = sum ln x (log coordinates) + sum [-e - ln(c - d)] (veil pairs), so
-    the priors on x are unchanged (tests/test_coordinates.py).
-    """
-
-    def __init__(self, space, log_post):
-        self.log_post = log_post
-        self.space = space
-        self.log = np.array([p.kind == "loguniform" for p in space.priors], bool)
-        self.pairs = []
-        names = list(space.names)
-        for k, name in enumerate(names):
-            base, at, label = name.partition("@")
-            cover = "veil_cover" + at + label
-            if base == "veil_tau" and cover in names:
-                c = names.index(cover)
-                if not (self.log[k] or self.log[c]):
-                    self.pairs.append((k, c))
-        self.pairs = np.array(self.pairs, int).reshape(-1, 2)
-
-    def to_x(self, u):
-        x = np.array(u, float, copy=True)
-        x[..., self.log] = np.exp(x[..., self.log])
-        t, c = self.pairs[:, 0], self.pairs[:, 1]
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            ratio = -np.expm1(-x[..., t]) / x[..., c]          # d / c
-            inside = (ratio >= 0) & (ratio < 1)
-            x[..., t] = np.where(inside, -np.log1p(-np.where(inside, ratio, 0.0)), np.nan)
-        return x
-
-    def to_u(self, x):
-        u = np.array(x, float, copy=True)
-        u[..., self.log] = np.log(u[..., self.log])
-        t, c = self.pairs[:, 0], self.pairs[:, 1]
-        u[..., t] = -np.log1p(u[..., c] * np.expm1(-u[..., t]))   # e = -ln(1 - d)
-        return u
-
-    def jacobian(self, u):
-        u = np.asarray(u)
-        t, c = self.pairs[:, 0], self.pairs[:, 1]
-        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            d = -np.expm1(-u[..., t])
-            pair = -np.sum(u[..., t] + np.log(u[..., c] - d), axis=-1)
-        return np.sum(u[..., self.log], axis=-1) + pair
-
-    def __call__(self, u):
-        u = np.atleast_2d(np.asarray(u, float))
-        x = self.to_x(u)
-        ok = np.all(np.isfinite(x), axis=1)
-        out = np.full(u.shape[0], -np.inf)
-        if ok.any():
-            out[ok] = self.log_post(x[ok]) + self.jacobian(u[ok])
-        out[np.isnan(out)] = -np.inf
-        return out
-
-    def sample_prior(self, rng, n):
-        return self.to_u(self.space.sample_prior(rng, n))
-
-    def result_in_x(self, result):
-        """A :class:`~teffmc.sample.SampleResult` in u turned into one in x."""
-        return replace(result, chain=self.to_x(result.chain),
-                       log_prob=result.log_prob - self.jacobian(result.chain))
-
-
-#: the former name (log coordinates only)
-LogCoordinates = SamplerCoordinates
 
 
 def hole_cautions(space, grid):
@@ -166,85 +78,6 @@ def sample_posterior(prep, checkpoint, *, resume, quiet, log):
                          check_every=s.check_every, checkpoint=checkpoint, resume=resume,
                          progress=not quiet, log=log)
     return coords.result_in_x(result)
-
-
-class VBand:
-    """Model Bessell V (Vega system) at Earth for a batch of parameters, on one epoch."""
-
-    def __init__(self, grid, model, r_v_prior):
-        from .observe import BandSet
-
-        wave = band_pixels(grid.wave, ["bessell-V"])
-        self.grid = grid.on_pixels(wave)
-        self.dust = Dust(wave, model, r_v_prior)
-        self.bands = BandSet(["bessell-V"], ["vega"], wave)
-
-    def __call__(self, p):
-        return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
-
-
-def _chunked(fn, flat, dtype=None, n_points=1):
-    """fn on blocks of draws (at most CHUNK, and ~BLOCK_VALUES draws x points)."""
-    step = max(1, min(CHUNK, BLOCK_VALUES // max(n_points, 1)))
-    parts = [fn(flat[i:i + step]) for i in range(0, flat.shape[0], step)]
-    if dtype is not None:  # each part converted as it comes (peak memory)
-        parts = [{k: v.astype(dtype) for k, v in p.items()} if isinstance(p, dict)
-                 else p.astype(dtype) for p in parts]
-    if isinstance(parts[0], dict):
-        return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
-    return np.concatenate(parts)
-
-
-def derived_quantities(prep, flat, rng):
-    """``{name: (n,)}`` derived quantities on every draw in ``flat`` (n, ndim)."""
-    cfg, space = prep.config, prep.space
-    dist = None
-    if cfg.distance_pc is not None:
-        dist = _positive_draws(cfg.distance_pc, rng, flat.shape[0])
-    elif cfg.parallax_mas is not None:
-        # distance = 1000 / parallax [pc, mas]; the data do not constrain it, so drawing it
-        # from its prior on every draw is the exact joint posterior
-        dist = 1000.0 / _positive_draws(cfg.parallax_mas, rng, flat.shape[0])
-    vband = VBand(prep.grid, cfg.model, space.prior_cover("r_v"))
-    out = {}
-    for label in space.labels:
-        suffix = f"@{label}" if space.multi else ""
-        p = space.epoch_values(flat, label)
-        for k, v in bolometric(p, dist).items():
-            out[k + suffix] = v
-        out["v_mag" + suffix] = _chunked(
-            lambda x, label=label: vband(space.epoch_values(x, label)), flat)
-    if space.multi:
-        ref = space.labels[0]
-        pa = space.epoch_values(flat, ref)
-        for label in space.labels[1:]:
-            pb = space.epoch_values(flat, label)
-            out[f"delta_teff@{label}"] = pb["teff"] - pa["teff"]
-            parts = _chunked(lambda idx, pb=pb: dimming_budget(
-                vband, _take(pa, idx), _take(pb, idx)), np.arange(flat.shape[0]))
-            for k, v in parts.items():
-                out[f"{k}@{label}"] = v
-    if dist is not None:
-        out["distance_pc"] = dist
-    return out
-
-
-def _positive_draws(prior, rng, n):
-    """n draws of a distance or parallax prior restricted to > 0.
-
-    A normal prior is drawn from its positive part directly, by the inverse CDF of the
-    normal truncated at 0: bounded time whatever its mass below 0 (redrawing the
-    non-positive draws took ~1/P(x > 0) rounds; config.py refuses P(x > 0) < 1e-3).
-    """
-    if prior.fixed:
-        return np.full(n, prior.value)
-    if prior.kind == "normal":
-        prior = Prior("truncnormal", mean=prior.mean, sd=prior.sd, low=0.0, high=math.inf)
-    return prior.sample(rng, n)
-
-
-def _take(p, idx):
-    return {k: v[idx] for k, v in p.items()}
 
 
 def _versions():
@@ -303,86 +136,33 @@ def loo_draws(prep):
 
 def finish_run(prep, result, folder, *, log, hypothesis=None):
     """Derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
-    cfg, space = prep.config, prep.space
+    cfg = prep.config
+    result = _thinned(result)
     n_draws, n_walkers, ndim = result.chain.shape
-    keep = max(1, math.ceil(n_draws * n_walkers / MAX_STORED_DRAWS))
-    if keep > 1:  # the chain is longer than a summary needs: store every keep-th draw
-        result = replace(result, chain=result.chain[::keep], log_prob=result.log_prob[::keep])
-        n_draws = result.chain.shape[0]
     flat = result.chain.reshape(-1, ndim)
     rng = np.random.default_rng(cfg.sampler.seed + 1)
     log(f"derived quantities on {flat.shape[0]} draws")
     derived = {k: v.reshape(n_draws, n_walkers)
                for k, v in derived_quantities(prep, flat, rng).items()}
-    # pointwise log-likelihood (for PSIS-LOO) on at most MAX_LOO_DRAWS draws: it is
-    # n_draws x n_pixels, by far the largest part of posterior.nc
-    every = max(1, math.ceil(n_draws * n_walkers / loo_draws(prep)))
-    loo_chain = result.chain[::every]
-    pointwise = _chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim), np.float32,
-                         n_points=sum(ch.n_points for cs in prep.channels.values() for ch in cs))
-    pointwise = {k: v.reshape(loo_chain.shape[0], n_walkers, -1)
-                 for k, v in pointwise.items()}
     sub = result.chain[-min(n_draws, 4):]
     predictive = {k: v.reshape(sub.shape[0], n_walkers, -1)
                   for k, v in _predict(prep, sub.reshape(-1, ndim)).items()}
     observed = {f"{label}.{ch.name}": ch.data
                 for label, chans in prep.channels.items() for ch in chans}
-    grid_checksum = prep.grid.checksum
-    record = {
-        "teffmc": {"version": __version__, "seed": cfg.sampler.seed,
-                   "grid": cfg.grid, "grid_checksum": grid_checksum,
-                   "command": " ".join(sys.argv), "versions": _versions(),
-                   "free_parameters": list(space.names), "fixed": space.fixed_values(),
-                   "priors": space.priors_dict(), "data_checksum": data_checksum(prep),
-                   "provenance": run_provenance(prep)},
-        **cfg.raw,
-    }
-    attrs = {"config": dumps_toml(record), "seed": cfg.sampler.seed,
-             "grid_checksum": grid_checksum, "versions": _versions(),
-             "converged": int(result.converged), "reason": result.reason,
-             "data_checksum": data_checksum(prep), "model": json.dumps(vars(cfg.model))}
-    constant, channels = {}, []
-    for pan, key in zip(_panels(prep, predictive), observed):
-        constant[f"{key}__x"], constant[f"{key}__err"] = pan["x"], pan["err"]
-        channels.append({"key": key, "kind": pan["kind"], "label": pan["label"],
-                         "bands": list(pan.get("bands", []))})
-    attrs["channels"] = json.dumps(channels)
-    attrs["title"] = cfg.name
-    dt = post_mod.build(result, derived=derived, pointwise=pointwise, observed=observed,
-                        predictive=predictive, attrs=attrs, constant=constant)
+    record = _run_record(prep)
+    attrs, constant = _attrs(prep, result, record, predictive, observed)
+    dt = post_mod.build(result, derived=derived, pointwise=_pointwise(prep, result),
+                        observed=observed, predictive=predictive, attrs=attrs,
+                        constant=constant)
     post_mod.save(dt, folder / "posterior.nc")
     gof = goodness_of_fit(prep, flat[rng.permutation(flat.shape[0])[:MAX_GOF_DRAWS]], rng)
     for key, g in gof.items():
         log(f"fit of {key}: chi2/nu = {g['chi2_nu']:.2f} ({g['n_points']} points), "
             f"rms {g['rms_sigma']:.2f} sigma, posterior-predictive p = {g['ppc_p']:.3f}")
-    summary = {
-        "hypothesis": hypothesis,
-        "converged": bool(result.converged),
-        "reason": result.reason,
-        "n_steps": int(result.n_steps), "n_walkers": int(n_walkers),
-        "burn": int(result.burn), "thin": int(result.thin),
-        "acceptance_fraction": float(np.mean(result.acceptance_fraction)),
-        "tau": {n: float(t) for n, t in zip(space.names, result.tau)},
-        "parameters": post_mod.summarise(dt, space.names),
-        "derived": post_mod.summarise(dt, list(derived)),
-        "fixed": space.fixed_values(),
-        "epochs": list(space.labels),
-        "grid": {"name": cfg.grid, "checksum": grid_checksum},
-        "goodness_of_fit": gof,
-        "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
-        + gof_cautions(gof)
-        + hole_cautions(space, prep.grid)
-        + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
-    }
+    summary = _summary(prep, result, dt, list(derived), gof, hypothesis)
     if cfg.sampler.evidence:
-        from .evidence import log_evidence
-
-        logz, logz_err, ncall = log_evidence(prep.log_post, space, seed=cfg.sampler.seed,
-                                             nlive=cfg.sampler.nlive)
-        summary["evidence"] = {"log_z": logz, "log_z_err": logz_err, "n_calls": ncall,
-                               "method": "nested sampling (dynesty)"}
-        log(f"evidence: ln Z = {logz:.2f} +- {logz_err:.2f} ({ncall} likelihood calls)")
-    _add_stat_intervals(summary, space, flat, derived)
+        summary["evidence"] = _evidence(prep, log)
+    _add_stat_intervals(summary, prep.space, flat, derived)
     write_summary(summary, folder / "summary.json", folder / "summary.ecsv")
     (folder / "run.toml").write_text(dumps_toml(record), encoding="utf-8")
     log("report: figures, tables, methods, report.html")
@@ -392,6 +172,95 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
     (folder / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
     write_run_products(folder, dt=dt, summary=strict_json(summary))
     return dt, summary
+
+
+def _thinned(result):
+    """The result with every keep-th draw when the chain is longer than a summary needs
+    (at most MAX_STORED_DRAWS draws of all walkers together are stored)."""
+    n_draws, n_walkers, _ = result.chain.shape
+    keep = max(1, math.ceil(n_draws * n_walkers / MAX_STORED_DRAWS))
+    if keep == 1:
+        return result
+    return replace(result, chain=result.chain[::keep], log_prob=result.log_prob[::keep])
+
+
+def _pointwise(prep, result):
+    """Pointwise log-likelihood (for PSIS-LOO) on at most :func:`loo_draws` draws, as
+    float32: it is n_draws x n_points, by far the largest part of posterior.nc."""
+    n_draws, n_walkers, ndim = result.chain.shape
+    every = max(1, math.ceil(n_draws * n_walkers / loo_draws(prep)))
+    loo_chain = result.chain[::every]
+    pointwise = chunked(prep.log_post.pointwise, loo_chain.reshape(-1, ndim), np.float32,
+                        n_points=sum(ch.n_points for cs in prep.channels.values() for ch in cs))
+    return {k: v.reshape(loo_chain.shape[0], n_walkers, -1) for k, v in pointwise.items()}
+
+
+def _run_record(prep):
+    """What run.toml holds: the config as read, under a [teffmc] table of what the run
+    used (version, seed, grid and data checksums, priors, provenance)."""
+    cfg, space = prep.config, prep.space
+    return {
+        "teffmc": {"version": __version__, "seed": cfg.sampler.seed,
+                   "grid": cfg.grid, "grid_checksum": prep.grid.checksum,
+                   "command": " ".join(sys.argv), "versions": _versions(),
+                   "free_parameters": list(space.names), "fixed": space.fixed_values(),
+                   "priors": space.priors_dict(), "data_checksum": data_checksum(prep),
+                   "provenance": run_provenance(prep)},
+        **cfg.raw,
+    }
+
+
+def _attrs(prep, result, record, predictive, observed):
+    """posterior.nc's attributes and its constant data (each channel's x and errors)."""
+    cfg = prep.config
+    attrs = {"config": dumps_toml(record), "seed": cfg.sampler.seed,
+             "grid_checksum": prep.grid.checksum, "versions": _versions(),
+             "converged": int(result.converged), "reason": result.reason,
+             "data_checksum": data_checksum(prep), "model": json.dumps(vars(cfg.model))}
+    constant, channels = {}, []
+    for pan, key in zip(_panels(prep, predictive), observed):
+        constant[f"{key}__x"], constant[f"{key}__err"] = pan["x"], pan["err"]
+        channels.append({"key": key, "kind": pan["kind"], "label": pan["label"],
+                         "bands": list(pan.get("bands", []))})
+    attrs["channels"] = json.dumps(channels)
+    attrs["title"] = cfg.name
+    return attrs, constant
+
+
+def _summary(prep, result, dt, derived_names, gof, hypothesis):
+    """summary.json's content (without the evidence and the statistical-only intervals)."""
+    cfg, space = prep.config, prep.space
+    return {
+        "hypothesis": hypothesis,
+        "converged": bool(result.converged),
+        "reason": result.reason,
+        "n_steps": int(result.n_steps), "n_walkers": int(result.chain.shape[1]),
+        "burn": int(result.burn), "thin": int(result.thin),
+        "acceptance_fraction": float(np.mean(result.acceptance_fraction)),
+        "tau": {n: float(t) for n, t in zip(space.names, result.tau)},
+        "parameters": post_mod.summarise(dt, space.names),
+        "derived": post_mod.summarise(dt, derived_names),
+        "fixed": space.fixed_values(),
+        "epochs": list(space.labels),
+        "grid": {"name": cfg.grid, "checksum": prep.grid.checksum},
+        "goodness_of_fit": gof,
+        "cautions": ([] if result.converged else [f"not converged: {result.reason}"])
+        + gof_cautions(gof)
+        + hole_cautions(space, prep.grid)
+        + ([CAUTION_GRID] if cfg.grid == "builtin" else []),
+    }
+
+
+def _evidence(prep, log):
+    """ln Z by nested sampling (``[sampler] evidence = true``)."""
+    from .evidence import log_evidence
+
+    s = prep.config.sampler
+    logz, logz_err, ncall = log_evidence(prep.log_post, prep.space, seed=s.seed,
+                                         nlive=s.nlive)
+    log(f"evidence: ln Z = {logz:.2f} +- {logz_err:.2f} ({ncall} likelihood calls)")
+    return {"log_z": logz, "log_z_err": logz_err, "n_calls": ncall,
+            "method": "nested sampling (dynesty)"}
 
 
 def _add_stat_intervals(summary, space, flat, derived):

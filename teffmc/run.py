@@ -6,12 +6,10 @@ the sampler checkpoint for ``--resume``) and renamed to ``OUT`` when complete, i
 completion marker written last; one writer at a time (see :mod:`teffmc.runfolder`).
 """
 
-import json
 import shutil
-from dataclasses import replace
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -24,8 +22,8 @@ from .errors import ConfigError, DataError, TeffmcError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
 from .parameters import ParameterSpace
-from .runfolder import (MARKER, discard, finish, finished_run, is_complete,
-                        remove_leftovers, run_lock, write_marker)
+from .runfolder import (MARKER, check_out_folder, check_replace, discard, finish,
+                        is_complete, remove_leftovers, run_lock, write_marker)
 
 __all__ = ["fit", "FitResult", "prepare", "Prepared"]
 
@@ -224,19 +222,6 @@ def fit(config, out=None, *, resume=False, quiet=False, overwrite=False):
         return _fit_locked(cfg, out, resume=resume, quiet=quiet, overwrite=overwrite)
 
 
-def check_replace(out, *, overwrite, resume):
-    """Refuse to replace a run in ``out`` unless ``overwrite`` (or ``resume``: continuing
-    it)."""
-    if overwrite or resume or not out.is_dir() or not any(out.iterdir()):
-        return
-    if finished_run(out) is not None:
-        raise ConfigError("holds a finished run: give --overwrite to replace it, or choose "
-                          "another --out", key="--out", value=str(out))
-    raise ConfigError("holds an unfinished run (no valid completion marker): continue it "
-                      "with --resume, replace it with --overwrite, or choose another --out",
-                      key="--out", value=str(out))
-
-
 def _fit_locked(cfg, out, *, resume, quiet, overwrite):
     variants = cfg.variants()
     if len(cfg.grids) > 1 or len(variants) > 1:  # a folder of several runs
@@ -378,42 +363,6 @@ def fit_one(config, out, *, resume=False, quiet=False, other_models=(), hypothes
     return FitResult(summary=summary, posterior=dt, out=out)
 
 
-def check_out_folder(out):
-    """Refuse an ``--out`` that cannot become a run folder, before anything is computed:
-    a path that is not a folder, one whose parent cannot be written (``OUT.partial`` is
-    made beside it), or a folder that is not a teffmc run (it would be deleted)."""
-    run_files = (MARKER, "summary.json", "posterior.nc", "log.txt", "compare.json",
-                 "stack.json")
-    if out.exists() and not out.is_dir():
-        raise ConfigError(f"{out} exists and is not a folder: choose another --out",
-                          key="--out", value=str(out))
-    _check_writable(out.parent, out)
-    if out.exists() and any(out.iterdir()) and not any((out / f).exists() for f in run_files):
-        raise ConfigError("exists and is not a teffmc run folder; it would be replaced: "
-                          "choose another --out", key="--out", value=str(out))
-
-
-def _check_writable(folder, out):
-    """The nearest existing folder on the way to ``folder`` accepts a new folder.
-
-    Tried by making (and removing) a temporary folder: ``os.access`` says yes to root on
-    any folder, and on file systems that refuse new entries anyway (/proc, /sys).
-    """
-    import tempfile
-
-    here = folder
-    while not here.exists() and here != here.parent:
-        here = here.parent
-    if not here.is_dir():
-        raise ConfigError(f"cannot make {out}: {here} is not a folder; choose another --out",
-                          key="--out", value=str(out))
-    try:
-        tempfile.TemporaryDirectory(dir=here, prefix=".teffmc-probe-").cleanup()
-    except OSError as exc:
-        raise ConfigError(f"cannot make {out}: cannot write in {here} ({exc.strerror or exc}); "
-                          "choose another --out", key="--out", value=str(out)) from None
-
-
 def _fmt(v, spec):
     """``format(v, spec)``, or "n/a" for a number summary.json holds as null (NaN)."""
     return "n/a" if v is None else format(v, spec)
@@ -437,7 +386,3 @@ def summary_to_text(summary):
         lines.append(f"fit of {key}: chi2/nu {_fmt(g['chi2_nu'], '.2f')} over "
                      f"{g['n_points']} points, rms {_fmt(g['rms_sigma'], '.2f')} sigma{flag}")
     return "\n".join(lines)
-
-
-def dumps(obj):
-    return json.dumps(obj, indent=2)

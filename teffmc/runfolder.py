@@ -16,6 +16,9 @@ replacement that no kill can leave half done.
   folders and :func:`teffmc.posterior.load_run` (``report``, ``compare``) reads only
   such folders. Figures and summary.ecsv are products that ``teffmc report`` redraws,
   so they are listed but not checksummed.
+- **Refuse.** Before anything is computed, :func:`check_out_folder` refuses an ``OUT``
+  that cannot become a run folder, and :func:`check_replace` a finished or unfinished
+  run in ``OUT`` without ``overwrite`` (or ``resume``).
 - **Replace.** :func:`install` renames the old run aside (``.OUT.old-<pid>``), renames
   the new one into place, then deletes the old one: at every instant ``OUT`` is either
   the whole old run, absent, or the whole new run.
@@ -36,7 +39,7 @@ from .errors import ConfigError, DataError
 
 __all__ = ["MARKER", "SOURCES", "RunLock", "run_lock", "batch_lock", "write_marker",
            "check_complete", "is_complete", "finished_run", "finish", "install", "discard",
-           "remove_leftovers"]
+           "remove_leftovers", "check_out_folder", "check_replace"]
 
 MARKER = "complete.json"
 #: files of a single run whose checksums the marker holds (the rest are redrawable)
@@ -286,3 +289,52 @@ def remove_leftovers(out):
     if out.parent.is_dir():
         for p in out.parent.glob(glob.escape(f".{out.name}.old-") + "*"):
             shutil.rmtree(p, ignore_errors=True)
+
+
+def check_out_folder(out):
+    """Refuse an ``--out`` that cannot become a run folder, before anything is computed:
+    a path that is not a folder, one whose parent cannot be written (``OUT.partial`` is
+    made beside it), or a folder that is not a teffmc run (it would be deleted)."""
+    run_files = (MARKER, "summary.json", "posterior.nc", "log.txt", "compare.json",
+                 "stack.json")
+    if out.exists() and not out.is_dir():
+        raise ConfigError(f"{out} exists and is not a folder: choose another --out",
+                          key="--out", value=str(out))
+    _check_writable(out.parent, out)
+    if out.exists() and any(out.iterdir()) and not any((out / f).exists() for f in run_files):
+        raise ConfigError("exists and is not a teffmc run folder; it would be replaced: "
+                          "choose another --out", key="--out", value=str(out))
+
+
+def _check_writable(folder, out):
+    """The nearest existing folder on the way to ``folder`` accepts a new folder.
+
+    Tried by making (and removing) a temporary folder: ``os.access`` says yes to root on
+    any folder, and on file systems that refuse new entries anyway (/proc, /sys).
+    """
+    import tempfile
+
+    here = folder
+    while not here.exists() and here != here.parent:
+        here = here.parent
+    if not here.is_dir():
+        raise ConfigError(f"cannot make {out}: {here} is not a folder; choose another --out",
+                          key="--out", value=str(out))
+    try:
+        tempfile.TemporaryDirectory(dir=here, prefix=".teffmc-probe-").cleanup()
+    except OSError as exc:
+        raise ConfigError(f"cannot make {out}: cannot write in {here} ({exc.strerror or exc}); "
+                          "choose another --out", key="--out", value=str(out)) from None
+
+
+def check_replace(out, *, overwrite, resume):
+    """Refuse to replace a run in ``out`` unless ``overwrite`` (or ``resume``: continuing
+    it)."""
+    if overwrite or resume or not out.is_dir() or not any(out.iterdir()):
+        return
+    if finished_run(out) is not None:
+        raise ConfigError("holds a finished run: give --overwrite to replace it, or choose "
+                          "another --out", key="--out", value=str(out))
+    raise ConfigError("holds an unfinished run (no valid completion marker): continue it "
+                      "with --resume, replace it with --overwrite, or choose another --out",
+                      key="--out", value=str(out))

@@ -30,6 +30,69 @@ def _finite_log_prob(log_prob, x):
     return np.where(np.isnan(lp), -np.inf, lp)
 
 
+class _Scaled:
+    """-log_prob in coordinates z = (x - centre) / spread of the prior draws (so one
+    tolerance suits every parameter), with the optimiser's box in z."""
+
+    def __init__(self, log_prob, draws, lp, bounds):
+        self.log_prob = log_prob
+        good = draws[np.isfinite(lp)]
+        centre = good.mean(axis=0)
+        spread = draws.std(axis=0)
+        self.centre = centre
+        self.spread = np.where(spread > 0, spread, np.maximum(np.abs(centre) * 0.05, 1e-3))
+        self.zbounds, self.lo, self.hi = None, -np.inf, np.inf
+        if bounds is not None:
+            self.zbounds = [
+                tuple(None if b is None else (b - c) / s for b in pair)
+                for pair, c, s in zip(bounds, centre, self.spread, strict=True)
+            ]
+            self.lo = np.array([-np.inf if b[0] is None else b[0] for b in self.zbounds])
+            self.hi = np.array([np.inf if b[1] is None else b[1] for b in self.zbounds])
+
+    def objective(self, z):
+        value = _finite_log_prob(self.log_prob, self.centre + self.spread * z)[0]
+        return -value if np.isfinite(value) else _OUTSIDE
+
+    def value_and_grad(self, z):
+        # one vectorised call: the point and its central-difference stencil
+        h = 1e-5
+        pts = self.centre + self.spread * np.vstack([z, z + h * np.eye(z.size),
+                                                     z - h * np.eye(z.size)])
+        f = -_finite_log_prob(self.log_prob, pts)
+        if not np.isfinite(f[0]):
+            return _OUTSIDE, np.zeros(z.size)
+        up, down = f[1:z.size + 1], f[z.size + 1:]
+        grad = np.where(np.isfinite(up) & np.isfinite(down), (up - down) / (2 * h),
+                        np.where(np.isfinite(up), (up - f[0]) / h,
+                                 np.where(np.isfinite(down), (f[0] - down) / h, 0.0)))
+        return f[0], grad
+
+    def polish(self, x, step):
+        """(x, log_prob) after a gradient polish and a short Nelder-Mead from ``x``."""
+        # prior draws may lie outside bounds
+        z0 = np.clip((x - self.centre) / self.spread, self.lo, self.hi)
+        # a gradient method first (each gradient one batch of 2 ndim + 1 points: far
+        # cheaper than Nelder-Mead's one point per call on a narrow posterior), then a
+        # short Nelder-Mead from its end (robust where the gradient is not)
+        with np.errstate(over="ignore", invalid="ignore"):
+            grad_res = minimize(self.value_and_grad, z0, jac=True, method="L-BFGS-B",
+                                bounds=self.zbounds, options={"maxiter": 200})
+        if np.isfinite(grad_res.fun) and grad_res.fun < self.objective(z0):
+            z0 = np.clip(grad_res.x, self.lo, self.hi)
+        simplex = np.vstack([z0, z0 + step * np.eye(z0.size)])
+        res = minimize(
+            self.objective, z0, method="Nelder-Mead", bounds=self.zbounds,
+            # a start only needs to be near the mode (the Laplace start and burn-in do
+            # the rest): 1e-3 in log-probability is far below its posterior spread of
+            # ~ndim/2
+            options={"initial_simplex": simplex, "xatol": 1e-4, "fatol": 1e-3,
+                     "maxiter": 40 * z0.size},
+        )
+        return (self.centre + self.spread * res.x,
+                (-res.fun if res.fun < _OUTSIDE else -np.inf))
+
+
 def find_start(log_prob, sample_prior, *, n_starts=16, rng, bounds=None, n_polish=4):
     """Find a high-posterior starting point by multi-start optimisation inside the priors.
 
@@ -75,66 +138,16 @@ def find_start(log_prob, sample_prior, *, n_starts=16, rng, bounds=None, n_polis
             f"none of {n_starts} prior draws has a finite log-probability; "
             "check the priors and the data"
         )
-    good = draws[np.isfinite(lp)]
-    centre = good.mean(axis=0)
-    spread = draws.std(axis=0)
-    spread = np.where(spread > 0, spread, np.maximum(np.abs(centre) * 0.05, 1e-3))
-    zbounds, lo, hi = None, -np.inf, np.inf
-    if bounds is not None:
-        zbounds = [
-            tuple(None if b is None else (b - c) / s for b in pair)
-            for pair, c, s in zip(bounds, centre, spread, strict=True)
-        ]
-        lo = np.array([-np.inf if b[0] is None else b[0] for b in zbounds])
-        hi = np.array([np.inf if b[1] is None else b[1] for b in zbounds])
-
-    def objective(z):
-        value = _finite_log_prob(log_prob, centre + spread * z)[0]
-        return -value if np.isfinite(value) else _OUTSIDE
-
-    def value_and_grad(z):
-        # one vectorised call: the point and its central-difference stencil
-        h = 1e-5
-        pts = centre + spread * np.vstack([z, z + h * np.eye(z.size), z - h * np.eye(z.size)])
-        f = -_finite_log_prob(log_prob, pts)
-        if not np.isfinite(f[0]):
-            return _OUTSIDE, np.zeros(z.size)
-        up, down = f[1:z.size + 1], f[z.size + 1:]
-        grad = np.where(np.isfinite(up) & np.isfinite(down), (up - down) / (2 * h),
-                        np.where(np.isfinite(up), (up - f[0]) / h,
-                                 np.where(np.isfinite(down), (f[0] - down) / h, 0.0)))
-        return f[0], grad
-
-    def polish(x, step):
-        z0 = np.clip((x - centre) / spread, lo, hi)  # prior draws may lie outside bounds
-        # a gradient method first (each gradient one batch of 2 ndim + 1 points: far
-        # cheaper than Nelder-Mead's one point per call on a narrow posterior), then a
-        # short Nelder-Mead from its end (robust where the gradient is not)
-        with np.errstate(over="ignore", invalid="ignore"):
-            grad_res = minimize(value_and_grad, z0, jac=True, method="L-BFGS-B",
-                                bounds=zbounds, options={"maxiter": 200})
-        if np.isfinite(grad_res.fun) and grad_res.fun < objective(z0):
-            z0 = np.clip(grad_res.x, lo, hi)
-        simplex = np.vstack([z0, z0 + step * np.eye(z0.size)])
-        res = minimize(
-            objective, z0, method="Nelder-Mead", bounds=zbounds,
-            # a start only needs to be near the mode (the Laplace start and burn-in do
-            # the rest): 1e-3 in log-probability is far below its posterior spread of
-            # ~ndim/2
-            options={"initial_simplex": simplex, "xatol": 1e-4, "fatol": 1e-3,
-                     "maxiter": 40 * z0.size},
-        )
-        return centre + spread * res.x, (-res.fun if res.fun < _OUTSIDE else -np.inf)
-
+    problem = _Scaled(log_prob, draws, lp, bounds)
     order = np.argsort(lp)[::-1][: min(int(n_polish), int(np.isfinite(lp).sum()))]
     best_x, best_lp = None, -np.inf
     for i in order:
-        x, value = polish(draws[i], 0.1)
+        x, value = problem.polish(draws[i], 0.1)
         if value > best_lp:
             best_x, best_lp = x, value
     if best_x is None:
         raise TeffmcError(f"no point with finite log-probability found inside bounds {bounds}")
-    x, value = polish(best_x, 0.01)  # restart: Nelder-Mead can stall on a collapsed simplex
+    x, value = problem.polish(best_x, 0.01)  # restart: Nelder-Mead can stall on a collapsed simplex
     return x if value > best_lp else best_x
 
 

@@ -2,12 +2,9 @@
 no traceback, and no run folder left behind unless it can be resumed and the line says so.
 """
 
-import json
 import math
 import os
-import shlex
 import signal
-import textwrap
 import time
 from dataclasses import replace
 
@@ -15,74 +12,19 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from teffmc.cli import main
-from teffmc.config import ModelSpec, load_config
+from teffmc.config import load_config
 from teffmc.errors import ConfigError
 from teffmc.parameters import ParameterSpace
-from teffmc.photosphere import BlackbodyGrid, load_grid
+from teffmc.photosphere import BlackbodyGrid
 from teffmc.priors import Prior
-from teffmc.simulate import simulate_epoch
 
-TRUTH = {"teff": 4000.0, "logg": 0.0, "mh": 0.0, "a_v": 0.5, "r_v": 3.1, "theta": 2.0}
-PRIORS = """\
-    [priors]
-    teff = { dist = "uniform", low = 3000, high = 5000 }
-    logg = { fixed = 0.0 }
-    mh = { fixed = 0.0 }
-    """
-TINY = """\
-    [sampler]
-    n_walkers = 8
-    max_steps = 20
-    min_steps = 20
-    check_every = 10
-    n_starts = 2
-    seed = 3
-    """
+from bad_inputs import config_file, fit_cli, no_nan, nothing_left, one_line, phot_table
 
 
 @pytest.fixture(scope="module")
 def phot(tmp_path_factory):
     """Photometry of a blackbody star (all the tests need is something to fit)."""
-    d = tmp_path_factory.mktemp("phot")
-    _, path = simulate_epoch(d, "s", load_grid("blackbody"), ModelSpec(), TRUTH,
-                             resolution=200.0, rng=np.random.default_rng(2))
-    return path.read_text()
-
-
-def _config(tmp_path, phot, *, top="", priors=PRIORS, sampler=TINY, tail=""):
-    """A blackbody config fitting photometry only; returns its path."""
-    (tmp_path / "p.ecsv").write_text(phot)
-    (tmp_path / "star.toml").write_text(
-        'grid = "blackbody"\n' + textwrap.dedent(top) + '[[epoch]]\nphotometry = "p.ecsv"\n'
-        + textwrap.dedent(priors) + textwrap.dedent(sampler) + textwrap.dedent(tail))
-    return tmp_path / "star.toml"
-
-
-def _fit(capsys, config, out, *extra):
-    rc = main(["fit", str(config), "--out", str(out), "--quiet", *extra])
-    cap = capsys.readouterr()
-    return rc, cap.err.strip()
-
-
-def _one_line(rc, err, code, *needles):
-    assert rc == code, err
-    assert len(err.splitlines()) == 1, err
-    assert "Traceback" not in err
-    for n in needles:
-        assert n in err, (n, err)
-
-
-def _nothing_left(out):
-    assert not out.exists(), sorted(out.iterdir()) if out.is_dir() else out
-    assert not out.with_name(out.name + ".partial").exists()
-
-
-def _no_nan(text):
-    def refuse(name):
-        raise AssertionError(f"bare {name} in strict JSON")
-
-    return json.loads(text, parse_constant=refuse)
+    return phot_table(tmp_path_factory.mktemp("phot"))
 
 
 # ---------------------------------------------------------------- 1. distance / parallax
@@ -94,13 +36,13 @@ def _no_nan(text):
     ("parallax_mas", "{ dist = \"normal\", mean = -1.0, sd = 0.5 }", None),  # 0.023 above 0
 ])
 def test_distance_prior_mostly_below_zero_is_refused(tmp_path, capsys, phot, key, prior, shown):
-    path = _config(tmp_path, phot, top=f"{key} = {prior}\n")
+    path = config_file(tmp_path, phot, top=f"{key} = {prior}\n")
     if shown is None:  # enough probability above 0: accepted, its positive part is used
         assert getattr(load_config(path), key).kind == "normal"
         return
-    rc, err = _fit(capsys, path, tmp_path / "run")
-    _one_line(rc, err, 2, "star.toml", key, shown, "above 0")
-    _nothing_left(tmp_path / "run")
+    rc, err = fit_cli(capsys, path, tmp_path / "run")
+    one_line(rc, err, 2, "star.toml", key, shown, "above 0")
+    nothing_left(tmp_path / "run")
 
 
 class _Timeout(Exception):
@@ -119,10 +61,10 @@ def _alarm(signum, frame):
     ("distance_pc", Prior("normal", mean=50.0, sd=100.0), (50.0, 100.0)),
 ])
 def test_derived_distance_draws_the_positive_part(tmp_path, phot, key, prior, truth):
-    from teffmc.pipeline import derived_quantities
+    from teffmc.derived import derived_quantities
     from teffmc.run import prepare
 
-    cfg = replace(load_config(_config(tmp_path, phot)), **{key: prior})
+    cfg = replace(load_config(config_file(tmp_path, phot)), **{key: prior})
     prep = prepare(cfg, log=lambda line: None)
     rng = np.random.default_rng(7)
     flat = prep.space.sample_prior(rng, 2000)
@@ -160,7 +102,7 @@ def test_summary_json_writes_null_not_nan(tmp_path):
                                            "rms_sigma": 1.0, "ppc_p": -np.inf}},
                "evidence": {"log_z": float("nan"), "log_z_err": float("nan")}}
     write_summary(summary, tmp_path / "summary.json", tmp_path / "summary.ecsv")
-    back = _no_nan((tmp_path / "summary.json").read_text())
+    back = no_nan((tmp_path / "summary.json").read_text())
     assert back["parameters"]["teff"]["r_hat"] is None
     assert back["parameters"]["teff"]["ess_bulk"] is None
     assert back["parameters"]["teff"]["ess_tail"] is None
@@ -180,142 +122,32 @@ def test_summary_json_writes_null_not_nan(tmp_path):
              "log_z_diff_err": 0.0, "n_points": 3, "n_bad_k": 0, "max_k": 0.1,
              "converged": True}]
     _write(rows, tmp_path)
-    comp = _no_nan((tmp_path / "compare.json").read_text())
+    comp = no_nan((tmp_path / "compare.json").read_text())
     assert comp["runs"][0]["log_z"] is None and comp["runs"][0]["elpd_loo"] == 1.0
-
-
-# ---------------------------------------------------------------- 3. Ctrl-C and SIGTERM
-
-# a fixed distance makes the derived distance constant: its R-hat is NaN (null in the file)
-DIST = "distance_pc = { fixed = 100.0 }\n"
-
-
-def _interrupt_after_sampling(monkeypatch, how):
-    import teffmc.pipeline
-
-    def stop(*args, **kwargs):
-        if how == "sigterm":
-            os.kill(os.getpid(), signal.SIGTERM)
-            time.sleep(30)  # the handler raises KeyboardInterrupt in here
-        raise KeyboardInterrupt
-
-    monkeypatch.setattr(teffmc.pipeline, "finish_run", stop)
-
-
-class _Terminated(Exception):
-    pass
-
-
-@pytest.fixture
-def sigterm_guard():
-    """Without teffmc's own handler a SIGTERM would end pytest: make it an exception."""
-    def guard(signum, frame):
-        raise _Terminated
-
-    old = signal.signal(signal.SIGTERM, guard)
-    yield guard
-    signal.signal(signal.SIGTERM, old)
-
-
-@pytest.mark.filterwarnings("ignore::teffmc.errors.ConvergenceWarning")  # 20 steps
-@pytest.mark.parametrize("how", ["ctrl-c", "sigterm"])
-def test_interrupted_fit_says_how_to_resume(tmp_path, capsys, monkeypatch, phot, how,
-                                            sigterm_guard):
-    path, out = _config(tmp_path, phot, top=DIST), tmp_path / "run"
-    with monkeypatch.context() as m:
-        _interrupt_after_sampling(m, how)
-        rc, err = _fit(capsys, path, out)
-    _one_line(rc, err, 130, "interrupted", "run.partial", "--resume", str(path))
-    assert signal.getsignal(signal.SIGTERM) is sigterm_guard  # restored after the run
-    assert (tmp_path / "run.partial" / "chain.h5").is_file() and not out.exists()
-    # the line's command resumes the run
-    cmd = shlex.split(err.split("`")[1])
-    assert cmd == ["teffmc", "fit", str(path), "--out", str(out), "--resume"]
-    rc = main([*cmd[1:], "--quiet"])
-    assert rc == 0, capsys.readouterr().err
-    assert (out / "summary.json").is_file() and not (tmp_path / "run.partial").exists()
-    s = _no_nan((out / "summary.json").read_text())  # 2. a real run's summary.json
-    assert s["derived"]["distance_pc"]["r_hat"] is None
-
-
-@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM])
-def test_signal_to_a_running_fit(tmp_path, phot, sig):
-    """A real `teffmc fit` process stopped mid-sampling: exit 130, one line, checkpoint kept."""
-    import subprocess
-    import sys
-
-    path = _config(tmp_path, phot, sampler=TINY.replace("max_steps = 20", "max_steps = 100000"))
-    out = tmp_path / "run"
-    proc = subprocess.Popen(  # SIGINT as in a terminal, even when the tests run in background
-        [sys.executable, "-m", "teffmc", "fit", str(path), "--out", str(out), "--quiet"],
-        stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
-        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
-    ckpt = tmp_path / "run.partial" / "chain.h5"
-    deadline = time.time() + 300
-    while not ckpt.exists() and proc.poll() is None and time.time() < deadline:
-        time.sleep(0.1)
-    assert proc.poll() is None, proc.stderr.read()
-    proc.send_signal(sig)
-    _, err = proc.communicate(timeout=120)
-    _one_line(proc.returncode, err.strip(), 130, "interrupted", "run.partial", "--resume")
-    assert ckpt.is_file() and not out.exists()
-
-
-@pytest.mark.parametrize("hypotheses", [False, True])
-def test_interrupt_before_the_first_checkpoint_leaves_nothing(tmp_path, capsys, monkeypatch,
-                                                              phot, hypotheses):
-    import teffmc.sample
-
-    def stop(*args, **kwargs):
-        raise KeyboardInterrupt
-
-    monkeypatch.setattr(teffmc.sample, "find_start", stop)
-    tail = ('[[hypothesis]]\nname = "bare"\n[[hypothesis]]\nname = "veiled"\nveil = "grey"\n'
-            if hypotheses else "")
-    sampler = TINY.replace("n_walkers = 8", "n_walkers = 10")  # 2 x 5 parameters (veiled)
-    rc, err = _fit(capsys, _config(tmp_path, phot, tail=tail, sampler=sampler),
-                   tmp_path / "run")
-    _one_line(rc, err, 130, "interrupted before the first checkpoint", "nothing was kept")
-    _nothing_left(tmp_path / "run")
-
-
-def test_sigterm_stops_batch_with_130(tmp_path, capsys, monkeypatch, phot, sigterm_guard):
-    import teffmc.batch
-
-    def stop(*args, **kwargs):
-        os.kill(os.getpid(), signal.SIGTERM)
-        time.sleep(30)
-        raise AssertionError("SIGTERM did not stop the batch")
-
-    monkeypatch.setattr(teffmc.batch, "fit_many", stop)
-    rc = main(["batch", str(_config(tmp_path, phot)), "--out", str(tmp_path / "b"), "--quiet"])
-    err = capsys.readouterr().err.strip()
-    _one_line(rc, err, 130, "interrupted", "re-run the same command")
-    assert signal.getsignal(signal.SIGTERM) is sigterm_guard
 
 
 # ---------------------------------------------------------------- 4, 5. [sampler]
 
 @pytest.mark.parametrize("seed", [2**64, 2**63, -1])
 def test_seed_out_of_range(tmp_path, capsys, phot, seed):
-    path = _config(tmp_path, phot, sampler=f"[sampler]\nseed = {seed}\n")
-    rc, err = _fit(capsys, path, tmp_path / "run")
-    _one_line(rc, err, 2, "star.toml", "sampler.seed", str(seed), "2**63")
-    _nothing_left(tmp_path / "run")
+    path = config_file(tmp_path, phot, sampler=f"[sampler]\nseed = {seed}\n")
+    rc, err = fit_cli(capsys, path, tmp_path / "run")
+    one_line(rc, err, 2, "star.toml", "sampler.seed", str(seed), "2**63")
+    nothing_left(tmp_path / "run")
 
 
 def test_largest_seed_is_accepted(tmp_path, phot):
-    path = _config(tmp_path, phot, sampler=f"[sampler]\nseed = {2**63 - 1}\n")
+    path = config_file(tmp_path, phot, sampler=f"[sampler]\nseed = {2**63 - 1}\n")
     assert load_config(path).sampler.seed == 2**63 - 1
 
 
 def test_min_steps_above_max_steps(tmp_path, capsys, phot):
-    path = _config(tmp_path, phot, sampler="[sampler]\nmax_steps = 100\nmin_steps = 500\n")
-    rc, err = _fit(capsys, path, tmp_path / "run")
-    _one_line(rc, err, 2, "star.toml", "sampler.min_steps", "500", "100")
-    _nothing_left(tmp_path / "run")
+    path = config_file(tmp_path, phot, sampler="[sampler]\nmax_steps = 100\nmin_steps = 500\n")
+    rc, err = fit_cli(capsys, path, tmp_path / "run")
+    one_line(rc, err, 2, "star.toml", "sampler.min_steps", "500", "100")
+    nothing_left(tmp_path / "run")
     # a short run keeping the default min_steps (1000) stays allowed: it ends not converged
-    ok = _config(tmp_path, phot, sampler="[sampler]\nmax_steps = 100\n")
+    ok = config_file(tmp_path, phot, sampler="[sampler]\nmax_steps = 100\n")
     assert load_config(ok).sampler.min_steps == 1000
 
 
@@ -338,10 +170,10 @@ ALL_FIXED = """\
     '[[hypothesis]]\nname = "veiled"\nveil = "grey"\n[[hypothesis]]\nname = "bare"\n',
 ])
 def test_every_parameter_fixed(tmp_path, capsys, phot, tail):
-    path = _config(tmp_path, phot, priors=ALL_FIXED, tail=tail)
-    rc, err = _fit(capsys, path, tmp_path / "run")
-    _one_line(rc, err, 2, "star.toml", "priors", "nothing to sample")
-    _nothing_left(tmp_path / "run")
+    path = config_file(tmp_path, phot, priors=ALL_FIXED, tail=tail)
+    rc, err = fit_cli(capsys, path, tmp_path / "run")
+    one_line(rc, err, 2, "star.toml", "priors", "nothing to sample")
+    nothing_left(tmp_path / "run")
 
 
 # ---------------------------------------------------------------- 7. names in figure titles
@@ -376,8 +208,8 @@ def test_figure_title_with_mathtext_characters(tmp_path, name, converged):
 def test_out_is_an_existing_file(tmp_path, capsys, phot):
     out = tmp_path / "run"
     out.write_text("keep me")
-    rc, err = _fit(capsys, _config(tmp_path, phot), out)
-    _one_line(rc, err, 2, "--out", str(out), "not a folder")
+    rc, err = fit_cli(capsys, config_file(tmp_path, phot), out)
+    one_line(rc, err, 2, "--out", str(out), "not a folder")
     assert out.read_text() == "keep me"
     assert not (tmp_path / "run.partial").exists()
 
@@ -385,8 +217,8 @@ def test_out_is_an_existing_file(tmp_path, capsys, phot):
 def test_out_inside_a_file(tmp_path, capsys, phot):
     (tmp_path / "afile").write_text("x")
     out = tmp_path / "afile" / "run"
-    rc, err = _fit(capsys, _config(tmp_path, phot), out)
-    _one_line(rc, err, 2, "--out", str(tmp_path / "afile"), "not a folder")
+    rc, err = fit_cli(capsys, config_file(tmp_path, phot), out)
+    one_line(rc, err, 2, "--out", str(tmp_path / "afile"), "not a folder")
     assert (tmp_path / "afile").read_text() == "x"
 
 
@@ -394,8 +226,8 @@ def test_out_inside_a_file(tmp_path, capsys, phot):
 def test_out_where_no_folder_can_be_made(tmp_path, capsys, phot):
     # /sys refuses new folders even to root (os.access would say yes)
     out = "/sys/kernel/teffmc-test-run"
-    rc, err = _fit(capsys, _config(tmp_path, phot), out)
-    _one_line(rc, err, 2, "--out", out, "cannot write in /sys/kernel")
+    rc, err = fit_cli(capsys, config_file(tmp_path, phot), out)
+    one_line(rc, err, 2, "--out", out, "cannot write in /sys/kernel")
     assert not os.path.exists(out) and not os.path.exists(out + ".partial")
 
 
@@ -431,7 +263,7 @@ def test_truncnormal_matches_scipy(mean, sd, low, high):
 
 
 def test_truncnormal_far_from_its_bounds_in_a_config(tmp_path, phot, rng):
-    path = _config(tmp_path, phot, priors="""\
+    path = config_file(tmp_path, phot, priors="""\
         [priors]
         a_v = { dist = "truncnormal", mean = 0.0, sd = 0.01, low = 0.5, high = 0.6 }
         """)
@@ -444,12 +276,12 @@ def test_truncnormal_far_from_its_bounds_in_a_config(tmp_path, phot, rng):
 def test_truncnormal_whose_mass_underflows_is_refused(tmp_path, capsys, phot):
     with pytest.raises(ValueError, match="underflows"):
         Prior("truncnormal", mean=0.0, sd=1e-160, low=1.0, high=2.0)
-    path = _config(tmp_path, phot, priors="""\
+    path = config_file(tmp_path, phot, priors="""\
         [priors]
         a_v = { dist = "truncnormal", mean = 0.0, sd = 1e-160, low = 1.0, high = 2.0 }
         """)
     with pytest.raises(ConfigError, match="priors.a_v"):
         load_config(path)
-    rc, err = _fit(capsys, path, tmp_path / "run")
-    _one_line(rc, err, 2, "star.toml", "priors.a_v", "underflows")
-    _nothing_left(tmp_path / "run")
+    rc, err = fit_cli(capsys, path, tmp_path / "run")
+    one_line(rc, err, 2, "star.toml", "priors.a_v", "underflows")
+    nothing_left(tmp_path / "run")

@@ -1,4 +1,4 @@
-"""The sampler's coordinates (pipeline.SamplerCoordinates) leave the priors unchanged.
+"""The sampler's coordinates (sampling_coords.SamplerCoordinates) leave the priors unchanged.
 
 Change of variables (common practice, no source): a density p(x) in x is p(x(u)) |dx/du|
 in u; the Jacobian is checked against a finite-difference determinant, and the density
@@ -8,8 +8,8 @@ of prior draws mapped to u against exp(log p(u)).
 import numpy as np
 import pytest
 
-from teffmc.pipeline import SamplerCoordinates
 from teffmc.priors import Prior
+from teffmc.sampling_coords import SamplerCoordinates
 
 
 class _Space:

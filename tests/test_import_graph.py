@@ -16,15 +16,16 @@ PKG = Path(__file__).resolve().parents[1] / "teffmc"
 # the numerical core and what it must not import
 CORE = ("teffmc.photosphere", "teffmc.dust", "teffmc.observe", "teffmc.model",
         "teffmc.likelihood")
-UPPER = ("teffmc.config", "teffmc.run", "teffmc.pipeline", "teffmc.report", "teffmc.rereport",
-         "teffmc.posterior", "teffmc.batch", "teffmc.cli", "teffmc.demo", "teffmc.compare",
-         "teffmc.sample", "teffmc.stacking_run")
+UPPER = ("teffmc.config", "teffmc.config_spec", "teffmc.run", "teffmc.pipeline",
+         "teffmc.report", "teffmc.rereport", "teffmc.posterior", "teffmc.batch", "teffmc.cli",
+         "teffmc.demo", "teffmc.compare", "teffmc.sample", "teffmc.sampling_coords",
+         "teffmc.derived", "teffmc.stacking_run")
 FORBIDDEN_EXTERNAL = ("arviz", "matplotlib", "emcee", "xarray", "tomllib")
 # modules of the core that read or write files, by design: data readers, the grid file
 # format, the grid importer and the optics-table cache. Everything else in the core
 # must not touch files.
 FILE_IO = {"teffmc.observe._readers", "teffmc.observe._text", "teffmc.observe.filters",
-           "teffmc.observe.photometry", "teffmc.photosphere.grid",
+           "teffmc.observe.photometry", "teffmc.photosphere.gridfile",
            "teffmc.photosphere.importer", "teffmc.dust.cache"}
 IO_MODULES = ("h5py", "netCDF4", "shutil", "pickle")
 PATH_IO = ("open", "read_text", "write_text", "read_bytes", "write_bytes", "unlink", "mkdir")

@@ -15,7 +15,8 @@ import numpy as np
 from scipy.special import logsumexp
 from scipy.stats import multivariate_normal
 
-from teffmc.likelihood.mismatch import correlated_loo_pointwise, matern32, velocity_axis
+from teffmc.likelihood.mismatch import matern32, velocity_axis
+from teffmc.likelihood.mismatch_loo import correlated_loo_pointwise
 
 N, AMP, RHO = 25, 0.05, 800.0
 

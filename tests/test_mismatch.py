@@ -11,14 +11,15 @@ import numpy as np
 import pytest
 from scipy.stats import multivariate_normal
 
-from teffmc.likelihood.mismatch import (
-    correlated_loglike,
-    correlated_loglike_parts,
-    correlated_loo_pointwise,
-    matern32,
-    velocity_axis,
-)
+from teffmc.likelihood.mismatch import correlated_loglike_parts, matern32, velocity_axis
+from teffmc.likelihood.mismatch_loo import correlated_loo_pointwise
 from teffmc.observe.calibration import marginal_loglike
+
+
+def correlated_loglike(d, var, m, t, amp, rho, design, prior_sigma):
+    """The filter with a plain variance per pixel (no jitter, no relative parts)."""
+    return correlated_loglike_parts(d, var, m, t, amp, rho, 1.0, 0.0, 0.0, design,
+                                    prior_sigma)
 
 
 def _problem(n=150, seed=3):

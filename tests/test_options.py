@@ -69,7 +69,7 @@ def test_interpolation_error_adds_variance(tmp_path):
 
 
 def test_parallax_gives_distance(tmp_path):
-    from teffmc.pipeline import derived_quantities
+    from teffmc.derived import derived_quantities
 
     prep = _case(tmp_path, top_extra='parallax_mas = { dist = "normal", mean = 2.0, sd = 0.1 }')
     x = np.repeat(_x(prep), 4000, axis=0)

@@ -13,7 +13,8 @@ quadrature.
 import numpy as np
 
 from ..errors import OffGridError
-from .mismatch import correlated_loglike_parts, correlated_loo_pointwise
+from .mismatch import correlated_loglike_parts
+from .mismatch_loo import correlated_loo_pointwise
 
 __all__ = ["Posterior"]
 

@@ -190,6 +190,71 @@ def _read_columns(path):
     return values, units
 
 
+def _check_columns(values, path):
+    """The columns band, err, system and exactly one of mag and flux are there."""
+    for need in ("band", "err", "system"):
+        if need not in values:
+            raise DataError(
+                f"missing column {need!r} (columns are {list(values)})", file=path, column=need
+            )
+    if ("mag" in values) == ("flux" in values):
+        raise DataError(
+            "give exactly one of the columns 'mag' and 'flux'",
+            file=path,
+            column="mag" if "mag" in values else "flux",
+        )
+
+
+def _band_names(column, path):
+    """Band names; a relative ``.ecsv`` filter file is taken from the table's folder.
+    Every band is looked up once here, so an unknown one is refused with the file."""
+    folder = Path(path).parent
+    bands = [
+        b if not (b.lower().endswith(".ecsv") and not Path(b).is_absolute()) else str(folder / b)
+        for b in (str(x).strip() for x in column)
+    ]
+    for band in bands:
+        get_filter(band, file=path)
+    return bands
+
+
+def _systems(column, path):
+    """Magnitude systems, 'vega' or 'ab' (any case)."""
+    system = [str(s).strip().lower() for s in column]
+    for i, s in enumerate(system):
+        if s not in ("vega", "ab"):
+            raise DataError(
+                f"row {i + 1}: should be 'vega' or 'ab' but got {s!r}",
+                file=path,
+                column="system",
+                value=s,
+            )
+    return system
+
+
+def _fluxes_to_mags(flux, err, units, bands, system, path):
+    """(mag, mag error) arrays from a flux column with a unit and its errors."""
+    if "flux" not in units:
+        raise DataError(
+            "flux column has no unit (use 'flux [mJy]' or '# flux_unit: mJy')",
+            file=path,
+            column="flux",
+        )
+    unit = parse_unit(units["flux"], file=path, column="flux")
+    pairs = []
+    for i, (f, e, b, s) in enumerate(zip(flux, err, bands, system)):
+        if not (np.isfinite(e) and e > 0):
+            raise DataError(
+                f"row {i + 1} ({b}): should be finite and > 0 but got {e:g}",
+                file=path,
+                column="err",
+                value=e,
+            )
+        pairs.append(_flux_to_mag(f, e, unit, b, s, path, i + 1))
+    mag, err = (np.array(v, dtype=float) for v in zip(*pairs))
+    return mag, err
+
+
 def read_photometry(path):
     """Read a photometry table (see the module notes for the columns).
 
@@ -209,33 +274,9 @@ def read_photometry(path):
         raise DataError("file not found", file=path) from None
     except OSError as exc:  # a folder, no permission, ...
         raise DataError(f"cannot read file ({exc.strerror or exc})", file=path) from None
-    for need in ("band", "err", "system"):
-        if need not in values:
-            raise DataError(
-                f"missing column {need!r} (columns are {list(values)})", file=path, column=need
-            )
-    if ("mag" in values) == ("flux" in values):
-        raise DataError(
-            "give exactly one of the columns 'mag' and 'flux'",
-            file=path,
-            column="mag" if "mag" in values else "flux",
-        )
-    folder = Path(path).parent
-    bands = [
-        b if not (b.lower().endswith(".ecsv") and not Path(b).is_absolute()) else str(folder / b)
-        for b in (str(x).strip() for x in values["band"])
-    ]
-    for band in bands:
-        get_filter(band, file=path)
-    system = [str(s).strip().lower() for s in values["system"]]
-    for i, s in enumerate(system):
-        if s not in ("vega", "ab"):
-            raise DataError(
-                f"row {i + 1}: should be 'vega' or 'ab' but got {s!r}",
-                file=path,
-                column="system",
-                value=s,
-            )
+    _check_columns(values, path)
+    bands = _band_names(values["band"], path)
+    system = _systems(values["system"], path)
     err = np.asarray(values["err"], dtype=float)
     if "mag" in values:
         unit = units.get("mag")
@@ -248,22 +289,5 @@ def read_photometry(path):
             )
         mag = values["mag"]
     else:
-        if "flux" not in units:
-            raise DataError(
-                "flux column has no unit (use 'flux [mJy]' or '# flux_unit: mJy')",
-                file=path,
-                column="flux",
-            )
-        unit = parse_unit(units["flux"], file=path, column="flux")
-        pairs = []
-        for i, (f, e, b, s) in enumerate(zip(values["flux"], err, bands, system)):
-            if not (np.isfinite(e) and e > 0):
-                raise DataError(
-                    f"row {i + 1} ({b}): should be finite and > 0 but got {e:g}",
-                    file=path,
-                    column="err",
-                    value=e,
-                )
-            pairs.append(_flux_to_mag(f, e, unit, b, s, path, i + 1))
-        mag, err = (np.array(v, dtype=float) for v in zip(*pairs))
+        mag, err = _fluxes_to_mags(values["flux"], err, units, bands, system, path)
     return make_photometry(bands, mag, err, system, values.get("floor"), source=path)

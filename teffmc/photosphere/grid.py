@@ -1,4 +1,4 @@
-"""The photosphere grid: file format and batch interpolation.
+"""The photosphere grid and its batch interpolation; its file (:mod:`.gridfile`).
 
 A grid is one HDF5 file (readable by any HDF5 or netCDF-4 reader) holding
 
@@ -20,33 +20,19 @@ nodes, for a whole batch of points at once. A point outside the axes raises
 hole raises it too (interpolation never silently crosses a hole).
 """
 
-import hashlib
 from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.sparse import csr_matrix
 
 from ..errors import GridError, OffGridError
+from .gridfile import AXES, FORMAT, grid_checksum, read_grid, write_grid
 
 __all__ = ["Grid", "AXES", "FORMAT", "grid_checksum"]
-
-AXES = ("teff", "logg", "mh")
-FORMAT = "teffmc-grid"
-FORMAT_VERSION = 1
-
 
 _LN10 = np.log(10.0)
 #: the most grid models a batch of walkers may touch for the dense interpolation product
 _DENSE_MODELS = 64
-
-
-def grid_checksum(teff, logg, mh, wave, log_flux):
-    """SHA-256 hex digest of the axes and the float32 flux, in a fixed byte order."""
-    h = hashlib.sha256()
-    for a in (teff, logg, mh, wave):
-        h.update(np.ascontiguousarray(a, dtype="<f8").tobytes())
-    h.update(np.ascontiguousarray(log_flux, dtype="<f4").tobytes())
-    return h.hexdigest()
 
 
 def _check_axis(name, values):
@@ -332,78 +318,14 @@ class Grid:
 
     # ------------------------------------------------------------------ file I/O
     def write(self, path):
-        """Write the grid to ``path`` (HDF5, gzip-compressed float32 flux)."""
-        import h5py
-
-        lf = np.asarray(self.log_flux, dtype="<f4")
-        with h5py.File(path, "w") as f:
-            f.attrs["format"] = FORMAT
-            f.attrs["format_version"] = FORMAT_VERSION
-            f.attrs["name"] = self.name
-            f.attrs["checksum"] = grid_checksum(self.teff, self.logg, self.mh, self.wave, lf)
-            for ax, unit in zip((*AXES, "wave"), ("K", "dex", "dex", "Angstrom (vacuum)")):
-                d = f.create_dataset(ax, data=np.asarray(getattr(self, ax), "<f8"))
-                d.attrs["units"] = unit
-            d = f.create_dataset("log_flux", data=lf, compression="gzip", compression_opts=6,
-                                 shuffle=True, chunks=(1, 1, 1, lf.shape[-1]))
-            d.attrs["units"] = "log10(erg s-1 cm-2 Angstrom-1), surface flux"
-            g = f.create_group("provenance")
-            for k, v in self.provenance.items():
-                g.attrs[k] = v
-            if self.nuisance:
-                from .nuisance import nuisance_checksum
-
-                n = f.create_group("nuisance")
-                n.attrs["checksum"] = nuisance_checksum(self.nuisance)
-                n.attrs["order"] = ",".join(self.nuisance_names)
-                for a in self.nuisance:
-                    ga = n.create_group(a.name)
-                    for k in ("step", "low", "high", "note"):
-                        ga.attrs[k] = getattr(a, k)
-                    for k in ("minus", "plus"):
-                        ga.create_dataset(k, data=np.asarray(getattr(a, k), "<f4"),
-                                          compression="gzip", compression_opts=6, shuffle=True,
-                                          chunks=(1, 1, 1, lf.shape[-1]))
+        """Write the grid to ``path`` (:func:`teffmc.photosphere.gridfile.write_grid`)."""
+        write_grid(self, path)
 
     @classmethod
     def read(cls, path):
-        """Read a grid file written by :meth:`write`, verifying its checksum."""
-        import h5py
-
-        try:
-            with h5py.File(path, "r") as f:
-                if f.attrs.get("format") != FORMAT:
-                    raise GridError(f"{path}: not a teffmc grid file (format attribute missing)")
-                arrays = {k: f[k][...] for k in (*AXES, "wave", "log_flux")}
-                prov = {k: str(v) for k, v in f["provenance"].attrs.items()}
-                name, checksum = str(f.attrs["name"]), str(f.attrs["checksum"])
-                axes, nuis_sum = _read_nuisance(f)
-        except (OSError, KeyError) as exc:
-            raise GridError(f"{path}: cannot read grid file ({exc})") from None
-        grid = cls(**arrays, provenance=prov, name=name, nuisance=axes)
-        if grid_checksum(*(arrays[k] for k in (*AXES, "wave", "log_flux"))) != checksum:
-            raise GridError(f"{path}: checksum mismatch, the file is corrupt or was edited")
-        if axes:
-            from .nuisance import nuisance_checksum
-
-            if nuisance_checksum(axes) != nuis_sum:
-                raise GridError(f"{path}: nuisance checksum mismatch, the file is corrupt or "
-                                "was edited")
-        return grid
-
-
-def _read_nuisance(f):
-    """The nuisance axes stored in an open grid file, and their checksum."""
-    from .nuisance import NuisanceAxis
-
-    if "nuisance" not in f:
-        return (), None
-    n = f["nuisance"]
-    axes = tuple(NuisanceAxis(name=k, step=float(g.attrs["step"]), minus=g["minus"][...],
-                              plus=g["plus"][...], low=float(g.attrs["low"]),
-                              high=float(g.attrs["high"]), note=str(g.attrs["note"]))
-                 for k, g in ((k, n[k]) for k in str(n.attrs["order"]).split(",")))
-    return axes, str(n.attrs["checksum"])
+        """Read a grid file written by :meth:`write`, verifying its checksum
+        (:func:`teffmc.photosphere.gridfile.read_grid`)."""
+        return read_grid(path, cls)
 
 
 class _Flat:

@@ -16,7 +16,7 @@ from .html import rounded_html, survey_page
 
 __all__ = ["write_survey_html", "survey_rows"]
 
-TABLE = "batch.ecsv"   # teffmc.batch.TABLE (not imported: batch imports this module)
+TABLE = "batch.ecsv"   # teffmc.batch.tables.TABLE (not imported: batch imports this module)
 
 
 def _f(x):
