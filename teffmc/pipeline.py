@@ -16,7 +16,7 @@ from .derived import bolometric
 from .goodness import cautions as gof_cautions
 from .goodness import BLOCK_VALUES, goodness_of_fit
 from .likelihood import pixel_variance
-from .model import Dust, band_pixels, observed_flux
+from .model import Terms, band_pixels, observed_flux
 from .priors import Prior
 from .provenance import data_labels, run_provenance
 from .report import write_summary
@@ -176,11 +176,11 @@ class VBand:
 
         wave = band_pixels(grid.wave, ["bessell-V"])
         self.grid = grid.on_pixels(wave)
-        self.dust = Dust(wave, model, r_v_prior)
+        self.terms = Terms(wave, model, r_v_prior)
         self.bands = BandSet(["bessell-V"], ["vega"], wave)
 
     def __call__(self, p):
-        return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
+        return self.bands.mags(observed_flux(self.grid, self.terms, p))[:, 0]
 
 
 def _chunked(fn, flat, dtype=None, n_points=1):
