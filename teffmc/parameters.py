@@ -16,7 +16,7 @@ from .errors import ConfigError
 from .priors import Prior
 
 __all__ = ["ParameterSpace", "model_parameters", "parameter_limits", "UNITS", "LABELS",
-           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS"]
+           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS", "WORDS"]
 
 _DECL = all_parameters()
 #: every parameter any model variant can have (declared by teffmc.components)
@@ -35,6 +35,9 @@ LATE_PARAMETERS = tuple(d.name for c in COMPONENTS if getattr(c, "AFTER_NUISANCE
                         for d in c.PARAMETERS)
 UNITS = {**{n: d.unit for n, d in _DECL.items()}, "tio_scale": "", "haze_scale": "",
          "rv_kms": "km/s", "distance_pc": "pc"}
+#: names in plain words (the methods text)
+WORDS = {**{n: d.words or n for n, d in _DECL.items()}, "tio_scale": "TiO opacity scale",
+         "haze_scale": "line-haze scale"}
 LABELS = {**{n: d.label for n, d in _DECL.items()}, "tio_scale": r"$s_\mathrm{TiO}$",
           "haze_scale": r"$s_\mathrm{haze}$", "distance_pc": "d [pc]"}
 

@@ -18,6 +18,7 @@ def test_every_parameter_declared_once_with_unit_and_label():
     assert len(names) == len(set(names))
     for p in all_parameters().values():
         assert isinstance(p, Param) and p.label and p.unit is not None
+        assert p.words and P.WORDS[p.name] == p.words   # the methods text's name
 
 
 def test_default_priors_respect_the_limits():

@@ -12,9 +12,11 @@ __all__ = ["PARAMETERS", "active", "setup", "log10_transmission"]
 
 PARAMETERS = (
     Param("a_v", "mag", r"$A_V$", Prior("uniform", low=0.0, high=10.0), low=0.0,
-          why="extinction cannot be negative", shared=True, group="veil"),
+          why="extinction cannot be negative", shared=True, group="veil",
+          words="interstellar extinction A_V"),
     # R_V's limits depend on the law: teffmc.parameters.parameter_limits asks the law
-    Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), shared=True, group="veil"),
+    Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), shared=True, group="veil",
+          words="R_V"),
 )
 
 

@@ -14,16 +14,20 @@ __all__ = ["PARAMETERS", "active", "setup", "factor"]
 
 PARAMETERS = (
     Param("veil_tau", "", r"$\tau_\mathrm{veil}$", Prior("uniform", low=0.0, high=5.0),
-          low=0.0, why="an optical depth cannot be negative", group="veil"),
+          low=0.0, why="an optical depth cannot be negative", group="veil",
+          words="veil optical depth at 0.55 µm"),
     Param("veil_cover", "", r"$f_\mathrm{veil}$", Prior("uniform", low=0.0, high=1.0),
-          low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="veil"),
+          low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="veil",
+          words="veil covering fraction"),
     # the radius's limits are the optics table's: teffmc.parameters.parameter_limits
     Param("grain_radius", "um", r"$a$ [µm]", Prior("loguniform", low=0.02, high=5.0),
           low=0.0, open_low=True, shared=True, group="veil",
-          active=lambda m: m.veil == "mie"),
+          active=lambda m: m.veil == "mie",
+          words="grain radius"),
     Param("veil_scatter", "", r"$s_\mathrm{veil}$", Prior("uniform", low=0.0, high=1.0),
           low=0.0, high=1.0, why="a scattered-light fraction lies in [0, 1]", shared=True,
-          group="veil", active=lambda m: m.veil == "mie" and m.scattering),
+          group="veil", active=lambda m: m.veil == "mie" and m.scattering,
+          words="scattered-light factor"),
 )
 
 
