@@ -11,6 +11,7 @@ from pathlib import Path
 
 from scipy import special
 
+from .components import SWITCHES
 from .dust.extinction import LAWS
 from .dust.materials import MATERIALS
 from .errors import ConfigError
@@ -69,6 +70,9 @@ class ModelSpec:
     interp_error: bool = False
     mismatch_terms: tuple = ()    # the kinds of mismatch term the spectra use (set by parse)
     grid_nuisance: bool = True    # sample the grid's nuisance axes (when it has any)
+    #: the optional components turned on by their declared ``[model]`` switch
+    #: (teffmc.components.SWITCHES), registry order
+    switches: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -103,8 +107,20 @@ class Config:
         """``[(name, Config)]``: one config per declared hypothesis (or just this one)."""
         if not self.hypotheses:
             return [(None, self)]
-        return [(name, replace(self, model=replace(self.model, **over), hypotheses=()))
+        return [(name, replace(self, model=_override(self.model, over), hypotheses=()))
                 for name, over in self.hypotheses]
+
+
+def _override(model, over):
+    """``model`` with a hypothesis's settings; its ``switches`` ({key: bool}) turn the
+    declared components on or off, the model's other switches kept."""
+    over = dict(over)
+    if "switches" in over:
+        sw = over["switches"]
+        on = (set(model.switches) | {k for k, v in sw.items() if v}) - {
+            k for k, v in sw.items() if not v}
+        over["switches"] = tuple(k for k in SWITCHES if k in on)
+    return replace(model, **over)
 
 
 def _prior(r: _Reader, k):
@@ -247,6 +263,7 @@ def _model(m):
         student_nu=m.positive("student_nu", 4.0),
         interp_error=m.get("interp_error", bool, False),
         grid_nuisance=m.get("grid_nuisance", bool, True),
+        switches=tuple(k for k in SWITCHES if m.get(k, bool, False)),
     )
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
@@ -335,6 +352,9 @@ def _hypothesis(h, t):
     for k in ("scattering", "patches"):
         if k in t:
             over[k] = h.get(k, bool)
+    sw = {k: h.get(k, bool) for k in SWITCHES if k in t}   # declared components
+    if sw:
+        over["switches"] = sw
     if "scatter_cone_deg" in t:
         over["scatter_cone_deg"] = _cone_deg(h, None)
     h.done()
