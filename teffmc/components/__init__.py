@@ -38,17 +38,20 @@ The photosphere itself is the grid interpolation and the angular-diameter scale 
 :mod:`teffmc.model`; components without a seam (noise, mismatch) act in the likelihood.
 The parameter tables the rest of the package reads -- names, units, labels, limits,
 default priors and sharing, budget groups, config switches -- are built here from the
-declarations. Adding a component is one file plus one line in :data:`COMPONENTS`.
+declarations. Adding a component is one file plus its name in :data:`REGISTRY`.
 """
 
-from . import interstellar, mismatch, noise, patches, photosphere, veil
+from importlib import import_module
+
 from .base import Param
 
-__all__ = ["COMPONENTS", "Param", "all_parameters", "declared", "active_parameters",
+__all__ = ["REGISTRY", "COMPONENTS", "Param", "all_parameters", "declared", "active_parameters",
            "SURFACE", "SWITCHES", "regions", "mean_t4"]
 
-#: the registry, in the order parameters appear in a fit
-COMPONENTS = (photosphere, interstellar, noise, veil, patches, mismatch)
+#: the registry: the component modules of this package, in the order their parameters
+#: appear in a fit. Adding a component is its file plus its name here.
+REGISTRY = ("photosphere", "interstellar", "noise", "veil", "patches", "mismatch")
+COMPONENTS = tuple(import_module(f"{__name__}.{name}") for name in REGISTRY)
 
 #: the components that are a part of the stellar surface (``region``), registry order
 SURFACE = tuple(c for c in COMPONENTS if hasattr(c, "region"))
