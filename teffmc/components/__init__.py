@@ -50,7 +50,7 @@ __all__ = ["REGISTRY", "COMPONENTS", "Param", "all_parameters", "declared", "act
 
 #: the registry: the component modules of this package, in the order their parameters
 #: appear in a fit. Adding a component is its file plus its name here.
-REGISTRY = ("photosphere", "interstellar", "noise", "veil", "patches", "mismatch")
+REGISTRY = ("photosphere", "interstellar", "noise", "veil", "patches", "mismatch", "spots")
 COMPONENTS = tuple(import_module(f"{__name__}.{name}") for name in REGISTRY)
 
 #: the components that are a part of the stellar surface (``region``), registry order
