@@ -144,3 +144,15 @@ def test_regions_beyond_the_disc_or_the_grid_are_refused(tmp_path):
     x = np.array([[r[n] for n in prep.space.names] for r in rows])
     lnp = prep.log_post(x)
     assert np.isfinite(lnp[0]) and lnp[1] == -np.inf and lnp[2] == -np.inf
+
+
+def test_methods_text_says_the_spots_are_on():
+    # the methods text names what the run's model switched on (its recorded switches)
+    from teffmc.report.methods import methods_context, render_methods
+
+    def text(switches):
+        record = {"teffmc": {"provenance": {"model": {"switches": switches}}}}
+        return render_methods(methods_context(record, {}), "md")[0]
+
+    assert "Hot surface spots are included" in text(["spots"])
+    assert "Hot surface spots" not in text([])

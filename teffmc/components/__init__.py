@@ -10,7 +10,8 @@ A component is one module listed in :data:`COMPONENTS`. It declares
 ``SWITCH`` (optional)
     the name of a boolean key of ``[model]`` and ``[[hypothesis]]`` that turns it on: the
     config reads every declared switch into ``ModelSpec.switches`` and ``active`` tests
-    ``SWITCH in model.switches``;
+    ``SWITCH in model.switches``; ``METHODS`` (optional) is then the sentence the methods
+    text (:mod:`teffmc.report.methods`) says when it is on;
 ``AFTER_NUISANCES`` (optional, True)
     its parameters come after the grid's nuisance parameters in the sampled vector (the
     layout of runs made before the components were declared);

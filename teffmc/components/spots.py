@@ -21,7 +21,7 @@ spot temperature must stay on the grid, which the likelihood checks.
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "SWITCH", "active", "region"]
+__all__ = ["PARAMETERS", "SWITCH", "METHODS", "active", "region"]
 
 PARAMETERS = (
     Param("spot_cover", "", r"$f_\mathrm{spot}$", Prior("uniform", low=0.0, high=0.5),
@@ -34,6 +34,9 @@ PARAMETERS = (
 )
 #: the ``[model]`` key that turns the spots on
 SWITCH = "spots"
+#: what the methods text says when they are on
+METHODS = ("Hot surface spots are included: a fraction of the disc at a higher effective "
+           "temperature, from the same grid, mixed with the photosphere by area.")
 
 
 def active(model):

@@ -10,6 +10,7 @@ twice, with LaTeX or Markdown filters, so the two texts say the same.
 import math
 from pathlib import Path, PurePath
 
+from ..components import COMPONENTS
 from ..parameters import UNITS, WORDS
 from .bibliography import LAW_KEYS, bibtex, short_cite
 from .latex import DERIVED, latex_escape
@@ -105,7 +106,16 @@ def methods_context(record, summary, *, comparison=None, star=None):
         "comparison": comparison or [], "versions": versions,
         "derived": derived,
         "photometry": any(d.get("kind") == "photometry" for d in data),
+        "switched": switched_sentences(model),
     }
+
+
+def switched_sentences(model):
+    """The ``METHODS`` sentences of the components a run's model switched on
+    (``switches`` of its recorded ModelSpec), registry order."""
+    on = set(model.get("switches") or ())
+    return [c.METHODS for c in COMPONENTS
+            if getattr(c, "SWITCH", None) in on and getattr(c, "METHODS", "")]
 
 
 def _md_escape(s):
