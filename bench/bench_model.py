@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 from threadpoolctl import threadpool_limits
 
+from teffmc.components import interstellar, veil
 from teffmc.config import ModelSpec
 from teffmc.photosphere import load_grid
 from teffmc.run import prepare
@@ -58,6 +59,7 @@ def main():
     x *= 1 + 1e-4 * np.random.default_rng(1).normal(size=x.shape)
     spec = prep.channels["obs"][0]
     p = prep.space.epoch_values(x, "obs")
+    st = spec.terms.states
     print(f"grid {args.grid}: {args.walkers} walkers, spectrum {spec.n_points} pixels, "
           f"photometry on {prep.channels['obs'][1].wave.size} pixels")
     with threadpool_limits(limits=1):
@@ -71,8 +73,9 @@ def main():
             print(f"   ... log g, [M/H] off-node  : "
                   f"{_time(lambda: spec.grid.interpolate(*off)):8.2f} ms")
         print(f"  interstellar extinction      : "
-              f"{_time(lambda: spec.dust.log10_extinction(p)):8.2f} ms")
-        print(f"  veil factor (spectrum)       : {_time(lambda: spec.dust.veil_factor(p)):8.2f} ms")
+              f"{_time(lambda: interstellar.log10_transmission(st['interstellar'], p)):8.2f} ms")
+        print(f"  veil factor (spectrum)       : "
+              f"{_time(lambda: veil.factor(st['veil'], p)):8.2f} ms")
     print(f"  log posterior, default threads: {_time(lambda: prep.log_post(x)):8.2f} ms")
 
 

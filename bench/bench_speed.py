@@ -194,6 +194,7 @@ class _Fixed:
 def stage_times(prep, x, n):
     """{stage: CPU ms per call} summed over the channels of every epoch (CPU time: on a
     shared machine the wall time of a stage mostly measures the other processes)."""
+    from teffmc.components import interstellar, veil
     from teffmc.model import grid_nuisance
 
     post = prep.log_post
@@ -206,15 +207,17 @@ def stage_times(prep, x, n):
             nuis = grid_nuisance(ch.grid, p)
             out["interpolation"] += _cpu(lambda ch=ch, p=p, nuis=nuis: ch.grid.interpolate_log(
                 p["teff"], p["logg"], p["mh"], nuis), n)
-            out["extinction"] += _cpu(lambda ch=ch, p=p: ch.dust.log10_extinction(p), n)
-            if ch.dust.veil is not None:
-                out["veil"] += _cpu(lambda ch=ch, p=p: ch.dust.veil_factor(p), n)
+            st = ch.terms.states
+            out["extinction"] += _cpu(lambda p=p, s=st["interstellar"]:
+                                      interstellar.log10_transmission(s, p), n)
+            if "veil" in st:
+                out["veil"] += _cpu(lambda p=p, s=st["veil"]: veil.factor(s, p), n)
             out["forward model total"] += _cpu(lambda ch=ch, p=p: ch.predict(p), n)
             model = ch.predict(p)
             if ch.kind == "photometry":
                 from teffmc.model import observed_flux
 
-                flux = observed_flux(ch.grid, ch.dust, p)
+                flux = observed_flux(ch.grid, ch.terms, p)
                 out["photometry (band sums)"] += _cpu(lambda ch=ch, f=flux: ch.bandset.mags(f), n)
             fixed = _Fixed(ch, model)
             out["likelihood (calibration, mismatch filter)"] += _cpu(

@@ -11,6 +11,7 @@ from pathlib import Path
 
 from scipy import special
 
+from .components import SWITCHES
 from .config_spec import DEFAULT_MISMATCH, Config, Epoch, ModelSpec, SamplerSpec, SpectrumSpec
 from .dust.extinction import LAWS
 from .dust.materials import MATERIALS
@@ -171,6 +172,7 @@ def _model(m):
         student_nu=m.positive("student_nu", 4.0),
         interp_error=m.get("interp_error", bool, False),
         grid_nuisance=m.get("grid_nuisance", bool, True),
+        switches=tuple(k for k in SWITCHES if m.get(k, bool, False)),
     )
     if not 0 <= model.grain_spread_dex <= 1:
         raise m.err("grain_spread_dex", f"should be in [0, 1] but got {model.grain_spread_dex}",
@@ -259,6 +261,9 @@ def _hypothesis(h, t):
     for k in ("scattering", "patches"):
         if k in t:
             over[k] = h.get(k, bool)
+    sw = {k: h.get(k, bool) for k in SWITCHES if k in t}   # declared components
+    if sw:
+        over["switches"] = sw
     if "scatter_cone_deg" in t:
         over["scatter_cone_deg"] = _cone_deg(h, None)
     h.done()

@@ -5,6 +5,7 @@ returns, with the defaults of every setting (the TOML reading and its validation
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+from .components import SWITCHES
 from .priors import Prior
 
 __all__ = ["Config", "Epoch", "SpectrumSpec", "ModelSpec", "SamplerSpec", "DEFAULT_MISMATCH"]
@@ -52,6 +53,9 @@ class ModelSpec:
     interp_error: bool = False
     mismatch_terms: tuple = ()    # the kinds of mismatch term the spectra use (set by parse)
     grid_nuisance: bool = True    # sample the grid's nuisance axes (when it has any)
+    #: the optional components turned on by their declared ``[model]`` switch
+    #: (teffmc.components.SWITCHES), registry order
+    switches: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -86,5 +90,17 @@ class Config:
         """``[(name, Config)]``: one config per declared hypothesis (or just this one)."""
         if not self.hypotheses:
             return [(None, self)]
-        return [(name, replace(self, model=replace(self.model, **over), hypotheses=()))
+        return [(name, replace(self, model=_override(self.model, over), hypotheses=()))
                 for name, over in self.hypotheses]
+
+
+def _override(model, over):
+    """``model`` with a hypothesis's settings; its ``switches`` ({key: bool}) turn the
+    declared components on or off, the model's other switches kept."""
+    over = dict(over)
+    if "switches" in over:
+        sw = over["switches"]
+        on = (set(model.switches) | {k for k, v in sw.items() if v}) - {
+            k for k, v in sw.items() if not v}
+        over["switches"] = tuple(k for k in SWITCHES if k in on)
+    return replace(model, **over)

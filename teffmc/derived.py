@@ -5,7 +5,8 @@ Notes
 Angular diameter ``theta`` and distance ``d`` give the radius ``R = theta/2 * d``;
 the luminosity is ``L = 4 pi R^2 sigma Teff^4`` and the bolometric flux at Earth
 (before extinction) ``f_bol = (theta/2)^2 sigma Teff^4`` (Stefan-Boltzmann law).
-With cool patches the luminosity uses the disc-averaged ``sigma T^4``.
+With surface regions (cool patches, ...) the luminosity uses the disc-averaged
+``sigma T^4`` (:func:`teffmc.components.mean_t4`).
 :func:`derived_quantities` gives them, the model V magnitude and, between epochs,
 Delta Teff and the dimming budget (teffmc.budget), on every draw of a run.
 """
@@ -15,8 +16,9 @@ import math
 import numpy as np
 
 from .budget import dimming_budget
+from .components import mean_t4
 from .goodness import BLOCK_VALUES
-from .model import MAS_TO_RAD, Dust, band_pixels, observed_flux
+from .model import MAS_TO_RAD, Terms, band_pixels, observed_flux
 from .priors import Prior
 
 __all__ = ["SIGMA_SB", "PC_M", "R_SUN_M", "L_SUN_W", "luminosity", "bolometric",
@@ -28,14 +30,6 @@ SIGMA_SB = 5.670374419e-8     # W m^-2 K^-4, CODATA 2018
 PC_M = 3.0856775814913673e16  # m, IAU 2015 Resolution B2
 R_SUN_M = 6.957e8             # m, IAU 2015 Resolution B3 nominal solar radius
 L_SUN_W = 3.828e26            # W, IAU 2015 Resolution B3 nominal solar luminosity
-
-
-def mean_t4(p):
-    """Disc-averaged T^4 [K^4] (two-temperature surface with cool patches)."""
-    t4 = p["teff"] ** 4
-    if "patch_cover" in p:
-        t4 = (1 - p["patch_cover"]) * t4 + p["patch_cover"] * (p["teff"] - p["patch_dteff"]) ** 4
-    return t4
 
 
 def luminosity(radius_m, t4):
@@ -63,11 +57,11 @@ class VBand:
 
         wave = band_pixels(grid.wave, ["bessell-V"])
         self.grid = grid.on_pixels(wave)
-        self.dust = Dust(wave, model, r_v_prior)
+        self.terms = Terms(wave, model, r_v_prior)
         self.bands = BandSet(["bessell-V"], ["vega"], wave)
 
     def __call__(self, p):
-        return self.bands.mags(observed_flux(self.grid, self.dust, p))[:, 0]
+        return self.bands.mags(observed_flux(self.grid, self.terms, p))[:, 0]
 
 
 def chunked(fn, flat, dtype=None, n_points=1):

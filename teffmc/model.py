@@ -8,20 +8,23 @@ products for the whole batch of walkers.
 
 Observed flux (Notes)::
 
-    F_obs(lambda) = (theta/2)^2 * F_surf(lambda) * 10^(-0.4 A_V k(lambda; R_V)) * V(lambda)
+    F_obs(lambda) = (theta/2)^2 * F_surf(lambda) * 10^(sum_i L_i(lambda)) * prod_j V_j(lambda)
 
 with ``theta`` the angular diameter [rad], ``F_surf`` the surface flux of the
-photosphere (a two-temperature mix when cool patches are on), ``k = A_lambda/A_V``
-the interstellar law and ``V`` the circumstellar veil factor (1 without a veil).
+photosphere (mixed by area with the surface regions, e.g. cool patches), ``L_i`` the
+log10 transmissions (interstellar extinction ``-0.4 A_V k(lambda; R_V)``) and ``V_j`` the
+factors (the circumstellar veil) of the model's components. The components -- their
+parameters, tables and evaluation -- live in :mod:`teffmc.components`; this module only
+composes the registered ones (:class:`Terms`, :func:`observed_flux`).
 """
 
 import numpy as np
 
-from .dust import ExtinctionTable, Veil
+from .components import COMPONENTS, regions
 from .constants import C_KMS
 from .likelihood.mismatch import _steps as _kernel_steps
 
-__all__ = ["MAS_TO_RAD", "Dust", "surface_flux", "observed_flux", "band_pixels", "SpectrumChannel",
+__all__ = ["MAS_TO_RAD", "Terms", "surface_flux", "observed_flux", "band_pixels", "SpectrumChannel",
            "PhotometryChannel"]
 
 MAS_TO_RAD = np.pi / (180.0 * 3600.0 * 1000.0)
@@ -44,65 +47,64 @@ def grid_nuisance(grid, p):
 def surface_flux(grid, p):
     """Surface flux (n, n_pix) of the photosphere for parameter arrays ``p``.
 
-    With cool patches, a fraction ``patch_cover`` of the disc has effective
-    temperature ``teff - patch_dteff`` (same log g and [M/H]); both components come
-    from the same grid (and the same grid physics).
+    With surface regions (:func:`teffmc.components.regions`: cool patches, ...), a
+    fraction ``cover`` of the disc has its own effective temperature (same log g and
+    [M/H]); all parts come from the same grid (and the same grid physics) and are mixed
+    by area.
     """
     nuis = grid_nuisance(grid, p)
     f = grid.interpolate(p["teff"], p["logg"], p["mh"], nuis)
-    if "patch_cover" in p:
-        fc = grid.interpolate(p["teff"] - p["patch_dteff"], p["logg"], p["mh"], nuis)
-        c = p["patch_cover"][:, None]
-        f = (1.0 - c) * f + c * fc
+    reg = regions(p)
+    if reg:
+        cover = reg[0][0]
+        for c, _ in reg[1:]:
+            cover = cover + c
+        f = (1.0 - cover[:, None]) * f
+        for c, teff in reg:
+            f += c[:, None] * grid.interpolate(teff, p["logg"], p["mh"], nuis)
     return f
 
 
-class Dust:
-    """Interstellar extinction and the circumstellar veil tabulated on one wavelength set."""
+class Terms:
+    """The active components' tables on one wavelength set (made once per channel).
+
+    ``log10`` and ``factors`` are ``[(evaluate, state), ...]`` of the components with a
+    ``log10_transmission`` or a ``factor`` (:mod:`teffmc.components`), registry order;
+    ``states`` is ``{component name: state}`` (e.g. ``states["veil"]``, a
+    :class:`teffmc.dust.Veil`).
+    """
 
     def __init__(self, wave, model, r_v_prior):
-        lo, hi = r_v_prior.support
-        if r_v_prior.fixed:
-            self.ext = ExtinctionTable(model.extinction_law, wave, r_v=r_v_prior.value)
-        else:
-            self.ext = ExtinctionTable(model.extinction_law, wave, r_v_range=(lo, hi))
-        self.veil = None
-        if model.veil != "none":
-            self.veil = Veil(model.veil, wave, material=model.grain_material,
-                             spread_dex=model.grain_spread_dex, scattering=model.scattering,
-                             scatter_cone_deg=model.scatter_cone_deg)
-
-    def log10_extinction(self, p):
-        """log10 of the interstellar transmission, -0.4 A_lambda, shape (n, n_pix)."""
-        return -0.4 * p["a_v"][:, None] * self.ext.curve(p["r_v"])
-
-    def veil_factor(self, p):
-        """Transmission of the circumstellar veil (n, n_pix), or None without a veil."""
-        if self.veil is None:
-            return None
-        n = p["a_v"].shape[0]
-        return self.veil.factor(p["veil_tau"], p["veil_cover"], p.get("grain_radius", np.ones(n)),
-                                p.get("veil_scatter", np.zeros(n)))
+        self.log10, self.factors, self.states = [], [], {}
+        for c in COMPONENTS:
+            if hasattr(c, "setup") and c.active(model):
+                state = c.setup(wave, model, r_v_prior)
+                self.states[c.__name__.rpartition(".")[2]] = state
+                if hasattr(c, "log10_transmission"):
+                    self.log10.append((c.log10_transmission, state))
+                else:
+                    self.factors.append((c.factor, state))
 
 
-def observed_flux(grid, dust, p):
+def observed_flux(grid, terms, p):
     """Model flux at Earth (n, n_pix) [erg s^-1 cm^-2 Angstrom^-1].
 
-    (theta/2)^2 x surface flux x interstellar transmission are summed in log10 and
-    exponentiated once (one exp per pixel instead of two powers and two products).
+    log10 of the surface flux, the components' log10 transmissions and of (theta/2)^2
+    are summed and exponentiated once (one exp per pixel instead of powers and
+    products); the components' factors multiply the result.
     """
     scale = (0.5 * p["theta"] * MAS_TO_RAD) ** 2
-    if "patch_cover" in p:         # a two-temperature surface mixes fluxes, not logs
+    if regions(p):                # several temperatures mix fluxes, not logs
         log = np.log10(surface_flux(grid, p))
     else:
         log = grid.interpolate_log(p["teff"], p["logg"], p["mh"], grid_nuisance(grid, p))
-    log += dust.log10_extinction(p)
+    for evaluate, state in terms.log10:
+        log += evaluate(state, p)
     log += np.log10(scale)[:, None]
     log *= _LN10
     flux = np.exp(log, out=log)
-    veil = dust.veil_factor(p)
-    if veil is not None:
-        flux *= veil
+    for evaluate, state in terms.factors:
+        flux *= evaluate(state, p)
     return flux
 
 
@@ -156,7 +158,7 @@ class SpectrumChannel:
             full = grid.on_pixels(np.asarray(spectrum.wave, float), resolution=resolution,
                                   fwhm_A=fwhm_A)
             self.grid = full.on_pixels(self.wave) if not use.all() else full
-        self.dust = Dust(work, model, r_v_prior)
+        self.terms = Terms(work, model, r_v_prior)
         self.likelihood, self.student_nu = model.likelihood, model.student_nu
         # fractional interpolation error per pixel (leave-one-node-out), or None
         self.interp_frac = None
@@ -186,7 +188,7 @@ class SpectrumChannel:
 
     def predict(self, p):
         """Model flux (n, n_pix) before the calibration polynomial."""
-        flux = observed_flux(self.grid, self.dust, p)
+        flux = observed_flux(self.grid, self.terms, p)
         if self.resample is None:
             return flux
         if self.log_resample:  # no line-spread: interpolate log flux, as the grid does
@@ -270,7 +272,7 @@ class PhotometryChannel:
             self.wave = wave
             self.grid = grid.on_pixels(wave)
         self.bandset = photometry.bandset(self.wave)
-        self.dust = Dust(self.wave, model, r_v_prior)
+        self.terms = Terms(self.wave, model, r_v_prior)
 
     @property
     def n_points(self):
@@ -278,4 +280,4 @@ class PhotometryChannel:
 
     def predict(self, p):
         """Model magnitudes (n, n_band)."""
-        return self.bandset.mags(observed_flux(self.grid, self.dust, p))
+        return self.bandset.mags(observed_flux(self.grid, self.terms, p))

@@ -11,13 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .components import active_parameters, all_parameters
-from .components.patches import PARAMETERS as _PATCH
+from .components import COMPONENTS, active_parameters, all_parameters
 from .errors import ConfigError
 from .priors import Prior
 
 __all__ = ["ParameterSpace", "model_parameters", "parameter_limits", "UNITS", "LABELS",
-           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS"]
+           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS", "WORDS"]
 
 _DECL = all_parameters()
 #: every parameter any model variant can have (declared by teffmc.components)
@@ -31,9 +30,14 @@ LIMITS = {n: (d.low, d.high, d.why) for n, d in _DECL.items()
           if (d.low > -math.inf or d.high < math.inf) and not d.open_low}
 #: parameters common to all epochs unless the config's ``shared`` says otherwise
 DEFAULT_SHARED = tuple(n for n, d in _DECL.items() if d.shared) + NUISANCE_PARAMETERS
-PATCH_PARAMETERS = tuple(d.name for d in _PATCH)
+#: parameters placed after the grid's nuisances (components with AFTER_NUISANCES)
+LATE_PARAMETERS = tuple(d.name for c in COMPONENTS if getattr(c, "AFTER_NUISANCES", False)
+                        for d in c.PARAMETERS)
 UNITS = {**{n: d.unit for n, d in _DECL.items()}, "tio_scale": "", "haze_scale": "",
          "rv_kms": "km/s", "distance_pc": "pc"}
+#: names in plain words (the methods text)
+WORDS = {**{n: d.words or n for n, d in _DECL.items()}, "tio_scale": "TiO opacity scale",
+         "haze_scale": "line-haze scale"}
 LABELS = {**{n: d.label for n, d in _DECL.items()}, "tio_scale": r"$s_\mathrm{TiO}$",
           "haze_scale": r"$s_\mathrm{haze}$", "distance_pc": "d [pc]"}
 
@@ -72,16 +76,16 @@ def model_parameters(model, grid_bounds, nuisance=()):
     active = active_parameters(model)
     p = {}
     for name, d in active.items():
-        if name in PATCH_PARAMETERS:
+        if name in LATE_PARAMETERS:
             continue
         p[name] = d.default_prior(model, grid_bounds)
     if getattr(model, "grid_nuisance", True):
         for a in nuisance:
             # the grid's own declared range of the uncertain input (see its note)
             p[a.parameter] = Prior("loguniform", low=a.low, high=a.high)
-    # the cool-patch parameters come after the nuisances (the vector layout of runs
-    # made before the components were declared)
-    for name in PATCH_PARAMETERS:
+    # components declaring AFTER_NUISANCES come after the nuisances (the cool patches:
+    # the vector layout of runs made before the components were declared)
+    for name in LATE_PARAMETERS:
         if name in active:
             p[name] = active[name].default_prior(model, grid_bounds)
     return p

@@ -96,7 +96,7 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
     from astropy import units as u
     from astropy.table import Table
 
-    from .model import Dust, SpectrumChannel, band_pixels, observed_flux
+    from .model import SpectrumChannel, Terms, band_pixels, observed_flux
     from .observe.spectrum import make_spectrum
     from .observe import BandSet
     from .priors import Prior
@@ -127,7 +127,7 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
 
     pw = band_pixels(grid.wave, bands)
     bs = BandSet(list(bands), ["vega"] * len(bands), pw)
-    mags = bs.mags(observed_flux(grid.on_pixels(pw), Dust(pw, model, rv), p))[0]
+    mags = bs.mags(observed_flux(grid.on_pixels(pw), Terms(pw, model, rv), p))[0]
     merr = np.broadcast_to(np.asarray(mag_err, float), mags.shape)
     if noise:
         mags = mags + rng.normal(0.0, merr)

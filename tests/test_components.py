@@ -18,6 +18,7 @@ def test_every_parameter_declared_once_with_unit_and_label():
     assert len(names) == len(set(names))
     for p in all_parameters().values():
         assert isinstance(p, Param) and p.label and p.unit is not None
+        assert p.words and P.WORDS[p.name] == p.words   # the methods text's name
 
 
 def test_default_priors_respect_the_limits():
@@ -67,3 +68,16 @@ def test_tables_built_from_the_declarations():
         assert P.UNITS[n] == d.unit and P.LABELS[n] == d.label
     assert P.LIMITS["veil_cover"][:2] == (0.0, 1.0)
     assert P.LIMITS["a_v"][:2] == (0.0, math.inf)
+
+
+def test_every_component_file_is_registered():
+    # a component is its file plus its name in REGISTRY (common practice, no source):
+    # a file left out of the registry would declare nothing and evaluate nothing
+    from pathlib import Path
+
+    from teffmc.components import REGISTRY
+
+    folder = Path(COMPONENTS[0].__file__).parent
+    files = {f.stem for f in folder.glob("*.py")} - {"__init__", "base"}
+    assert set(REGISTRY) == files and len(REGISTRY) == len(set(REGISTRY))
+    assert [c.__name__.rpartition(".")[2] for c in COMPONENTS] == list(REGISTRY)

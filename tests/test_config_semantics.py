@@ -104,13 +104,13 @@ def test_more_refused_values(tmp_path, body, key):
 
 
 def test_scatter_cone_reaches_the_veil_and_is_bounded(tmp_path):
-    from teffmc.model import Dust
+    from teffmc.model import Terms
     from teffmc.priors import Prior
 
     cfg = _cfg(tmp_path, '[model]\nveil = "mie"\nscattering = true\nscatter_cone_deg = 12.5\n')
     assert cfg.model.scatter_cone_deg == 12.5
-    dust = Dust(np.array([4000.0, 8000.0]), cfg.model, Prior("fixed", value=3.1))
-    assert dust.veil.scatter_cone_deg == 12.5 and dust.veil.table.cone_deg == 12.5
+    veil = Terms(np.array([4000.0, 8000.0]), cfg.model, Prior("fixed", value=3.1)).states["veil"]
+    assert veil.scatter_cone_deg == 12.5 and veil.table.cone_deg == 12.5
     with pytest.raises(ConfigError, match="scatter_cone_deg"):
         _cfg(tmp_path, '[model]\nveil = "mie"\nscatter_cone_deg = 120.0\n')
 

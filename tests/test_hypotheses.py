@@ -13,7 +13,7 @@ import pytest
 from teffmc.budget import dimming_budget
 from teffmc.config import ModelSpec
 from teffmc.errors import ConvergenceWarning
-from teffmc.model import Dust, band_pixels, observed_flux
+from teffmc.model import Terms, band_pixels, observed_flux
 from teffmc.observe import BandSet, synth_mag
 from teffmc.photosphere import load_grid
 from teffmc.priors import Prior
@@ -114,11 +114,11 @@ def test_temperature_part_of_the_budget_equals_direct_v_difference():
     grid = load_grid("builtin")
     wave = band_pixels(grid.wave, ["bessell-V"])
     g = grid.on_pixels(wave)
-    dust = Dust(wave, ModelSpec(), Prior("fixed", value=3.1))
+    terms = Terms(wave, ModelSpec(), Prior("fixed", value=3.1))
     bands = BandSet(["bessell-V"], ["vega"], wave)
 
     def v_of(p):
-        return bands.mags(observed_flux(g, dust, p))[:, 0]
+        return bands.mags(observed_flux(g, terms, p))[:, 0]
 
     one = {k: np.array([v]) for k, v in {**BASE, "a_v": 0.0}.items()}
     pa, pb = {**one, "teff": np.array([3600.0])}, {**one, "teff": np.array([3550.0])}

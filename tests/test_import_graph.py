@@ -1,10 +1,10 @@
 """The package's import graph: no cycles, and a numerical core that stays numerical.
 
 The layers (DEVELOPERS.md, "Layout"): the numerical core (photosphere, dust, observe,
-model, likelihood) takes plain values and raises plain errors; configuration, sampling,
-posterior handling, reports and the command line sit above it. These tests read every
-module's ``import`` statements with :mod:`ast` (function-level imports included), so a
-late import cannot hide an edge.
+model, the model components, likelihood) takes plain values and raises plain errors;
+configuration, sampling, posterior handling, reports and the command line sit above it.
+These tests read every module's ``import`` statements with :mod:`ast` (function-level
+imports included), so a late import cannot hide an edge.
 """
 
 import ast
@@ -15,7 +15,7 @@ PKG = Path(__file__).resolve().parents[1] / "teffmc"
 
 # the numerical core and what it must not import
 CORE = ("teffmc.photosphere", "teffmc.dust", "teffmc.observe", "teffmc.model",
-        "teffmc.likelihood")
+        "teffmc.components", "teffmc.likelihood")
 UPPER = ("teffmc.config", "teffmc.config_spec", "teffmc.run", "teffmc.pipeline",
          "teffmc.report", "teffmc.rereport", "teffmc.posterior", "teffmc.batch", "teffmc.cli",
          "teffmc.demo", "teffmc.compare", "teffmc.sample", "teffmc.sampling_coords",

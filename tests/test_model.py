@@ -39,9 +39,9 @@ def test_coarse_photometry_pixels_match_native_synthetic_mags(rng):
     p = {"teff": np.array([3600.0]), "logg": np.zeros(1), "mh": np.zeros(1),
          "theta": np.array([10.0]), "a_v": np.array([0.7]), "r_v": np.array([3.1])}
     got = ch.predict(p)[0]
-    from teffmc.model import Dust
+    from teffmc.model import Terms
 
-    native = observed_flux(grid, Dust(grid.wave, ModelSpec(), Prior("fixed", value=3.1)), p)[0]
+    native = observed_flux(grid, Terms(grid.wave, ModelSpec(), Prior("fixed", value=3.1)), p)[0]
     want = [synth_mag(grid.wave, native, b, "vega") for b in BANDS]
     np.testing.assert_allclose(got, want, atol=1e-3)
 
@@ -57,12 +57,12 @@ def test_cool_patches_mix_two_temperatures():
 
 def test_angular_diameter_scaling():
     # F_obs = (theta/2)^2 F_surf (definition of the angular diameter; 1 mas = pi/648e6 rad)
-    from teffmc.model import Dust
+    from teffmc.model import Terms
 
     grid = BlackbodyGrid(np.geomspace(4000, 9000, 20))
     p = {"teff": np.array([5000.0]), "logg": np.zeros(1), "mh": np.zeros(1),
          "theta": np.array([2.0]), "a_v": np.zeros(1), "r_v": np.array([3.1])}
-    f = observed_flux(grid, Dust(grid.wave, ModelSpec(), Prior("fixed", value=3.1)), p)[0]
+    f = observed_flux(grid, Terms(grid.wave, ModelSpec(), Prior("fixed", value=3.1)), p)[0]
     half = 1.0 * np.pi / 648e6
     np.testing.assert_allclose(f, half**2 * grid.interpolate(5000.0, 0, 0)[0], rtol=1e-12)
     assert pytest.approx(np.pi / 648e6) == np.deg2rad(1 / 3.6e6)
@@ -73,7 +73,7 @@ def test_observed_flux_is_the_plain_product(rng, patches):
     # observed_flux sums logs and exponentiates once; it must equal the textbook product
     # (theta/2)^2 F_surf 10^(-0.4 A_V a(lambda)) x veil (definitions; DESIGN section 4)
     from teffmc.dust import extinction_curve
-    from teffmc.model import Dust
+    from teffmc.model import Terms
 
     grid = _lined_grid(rng)
     model = ModelSpec(veil="grey", patches=patches)
@@ -85,7 +85,7 @@ def test_observed_flux_is_the_plain_product(rng, patches):
     if patches:
         p |= {"teff": np.linspace(3650.0, 3700.0, n), "patch_cover": np.full(n, 0.2),
               "patch_dteff": np.full(n, 150.0)}
-    got = observed_flux(grid, Dust(grid.wave, model, Prior("fixed", value=3.1)), p)
+    got = observed_flux(grid, Terms(grid.wave, model, Prior("fixed", value=3.1)), p)
     half = 0.5 * p["theta"] * np.pi / 648e6
     ext = 10.0 ** (-0.4 * p["a_v"][:, None] * extinction_curve("CCM89", 3.1, grid.wave))
     veil = 1.0 - 0.6 * (1.0 - np.exp(-p["veil_tau"]))[:, None]

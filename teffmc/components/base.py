@@ -18,7 +18,8 @@ class Param:
     (``why`` says where they come from; ``open_low`` for a strict ``> low``);
     ``shared`` whether epochs share it unless the config says otherwise; ``group`` its
     dimming-budget group (``teffmc.budget``: temperature, veil, radius) or None;
-    ``active`` an extra condition on the model variant beyond the component's.
+    ``active`` an extra condition on the model variant beyond the component's; ``words``
+    its name in plain words for the methods text (``teffmc.report.methods``).
     """
 
     name: str
@@ -32,6 +33,7 @@ class Param:
     shared: bool = False
     group: str | None = None
     active: Callable | None = None
+    words: str = ""
 
     def default_prior(self, model, grid_bounds):
         return self.prior(model, grid_bounds) if callable(self.prior) else self.prior

@@ -1,17 +1,39 @@
-"""Interstellar extinction: a dust_extinction law scaled by A_V, shaped by R_V."""
+"""Interstellar extinction: a dust_extinction law scaled by A_V, shaped by R_V.
+
+Acts as a log10 transmission ``-0.4 A_V k(lambda; R_V)`` with ``k = A_lambda / A_V`` of
+the model's law, tabulated on each data set's wavelengths (over the R_V prior's range
+when R_V is free).
+"""
 
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active"]
+__all__ = ["PARAMETERS", "active", "setup", "log10_transmission"]
 
 PARAMETERS = (
     Param("a_v", "mag", r"$A_V$", Prior("uniform", low=0.0, high=10.0), low=0.0,
-          why="extinction cannot be negative", shared=True, group="veil"),
+          why="extinction cannot be negative", shared=True, group="veil",
+          words="interstellar extinction A_V"),
     # R_V's limits depend on the law: teffmc.parameters.parameter_limits asks the law
-    Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), shared=True, group="veil"),
+    Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), shared=True, group="veil",
+          words="R_V"),
 )
 
 
 def active(model):
     return True
+
+
+def setup(wave, model, r_v_prior):
+    """The law's curve on ``wave`` (:class:`teffmc.dust.ExtinctionTable`)."""
+    from ..dust.extinction import ExtinctionTable
+
+    if r_v_prior.fixed:
+        return ExtinctionTable(model.extinction_law, wave, r_v=r_v_prior.value)
+    lo, hi = r_v_prior.support
+    return ExtinctionTable(model.extinction_law, wave, r_v_range=(lo, hi))
+
+
+def log10_transmission(table, p):
+    """log10 of the interstellar transmission, -0.4 A_lambda, shape (n, n_pix)."""
+    return -0.4 * p["a_v"][:, None] * table.curve(p["r_v"])

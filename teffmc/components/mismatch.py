@@ -23,13 +23,16 @@ def _correlated(model):
 
 PARAMETERS = (
     Param("mismatch_amp", "", r"$\sigma_\mathrm{mis}$", Prior("loguniform", low=1e-3, high=0.5),
-          low=0.0, open_low=True, why="an amplitude is positive", shared=True),
+          low=0.0, open_low=True, why="an amplitude is positive", shared=True,
+          words="mismatch amplitude"),
     Param("mismatch_scale", "km/s", r"$\rho_\mathrm{mis}$ [km/s]",
           Prior("loguniform", low=100.0, high=10000.0), low=0.0, open_low=True,
-          why="a correlation length is positive", shared=True, active=_correlated),
+          why="a correlation length is positive", shared=True, active=_correlated,
+          words="mismatch correlation length"),
     Param("mismatch_white", "", r"$\sigma_\mathrm{pix}$", Prior("loguniform", low=1e-4, high=0.3),
           low=0.0, open_low=True, why="an amplitude is positive", shared=True,
-          active=_correlated),
+          active=_correlated,
+          words="independent mismatch amplitude"),
 )
 
 

@@ -7,7 +7,8 @@ __all__ = ["PARAMETERS", "active"]
 
 PARAMETERS = (
     Param("jitter", "", "jitter", Prior("fixed", value=1.0), low=0.0, open_low=True,
-          why="it scales errors", shared=True),
+          why="it scales errors", shared=True,
+          words="error scaling (jitter)"),
 )
 
 

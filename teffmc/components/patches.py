@@ -1,18 +1,34 @@
-"""Cool surface patches: a fraction of the disc at a lower effective temperature."""
+"""Cool surface patches: a fraction of the disc at a lower effective temperature.
+
+A surface region (:mod:`teffmc.components`): a fraction ``patch_cover`` of the disc has
+effective temperature ``teff - patch_dteff``, with the photosphere's log g, [M/H] and
+grid physics; the model mixes the two surface fluxes by area.
+"""
 
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active"]
+__all__ = ["PARAMETERS", "active", "region"]
 
 PARAMETERS = (
     Param("patch_cover", "", r"$f_\mathrm{patch}$", Prior("uniform", low=0.0, high=0.9),
-          low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="temperature"),
+          low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="temperature",
+          words="cool-patch fraction"),
     Param("patch_dteff", "K", r"$\Delta T_\mathrm{patch}$",
           Prior("uniform", low=0.0, high=1500.0), low=0.0,
-          why="the patches are cooler than the photosphere", group="temperature"),
+          why="the patches are cooler than the photosphere", group="temperature",
+          words="cool-patch temperature difference"),
 )
+#: after the grid's nuisances in the sampled vector (the layout of earlier runs)
+AFTER_NUISANCES = True
 
 
 def active(model):
     return model.patches
+
+
+def region(p):
+    """``(cover, teff)`` of the patches, or None without them."""
+    if "patch_cover" not in p:
+        return None
+    return p["patch_cover"], p["teff"] - p["patch_dteff"]

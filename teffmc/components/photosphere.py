@@ -18,11 +18,15 @@ def _axis(axis):
 
 
 PARAMETERS = (
-    Param("teff", "K", r"$T_\mathrm{eff}$ [K]", _axis("teff"), group="temperature"),
-    Param("logg", "dex", r"$\log g$", _axis("logg"), shared=True, group="temperature"),
-    Param("mh", "dex", "[M/H]", _axis("mh"), shared=True, group="temperature"),
+    Param("teff", "K", r"$T_\mathrm{eff}$ [K]", _axis("teff"), group="temperature",
+          words="effective temperature"),
+    Param("logg", "dex", r"$\log g$", _axis("logg"), shared=True, group="temperature",
+          words="surface gravity"),
+    Param("mh", "dex", "[M/H]", _axis("mh"), shared=True, group="temperature",
+          words="metallicity"),
     Param("theta", "mas", r"$\theta$ [mas]", Prior("loguniform", low=1e-3, high=1e3),
-          low=0.0, open_low=True, why="an angular diameter is positive", group="radius"),
+          low=0.0, open_low=True, why="an angular diameter is positive", group="radius",
+          words="angular diameter"),
 )
 
 

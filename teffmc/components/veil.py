@@ -1,24 +1,51 @@
-"""The circumstellar veil: partial covering by grey or Mie dust, with scattered light."""
+"""The circumstellar veil: partial covering by grey or Mie dust, with scattered light.
+
+Acts as a factor on the flux (:meth:`teffmc.dust.Veil.factor`: ``1 - c + c e^-tau`` plus
+the scattered light, not a cheap logarithm), with the grain optics tabulated on each data
+set's wavelengths.
+"""
+
+import numpy as np
 
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active"]
+__all__ = ["PARAMETERS", "active", "setup", "factor"]
 
 PARAMETERS = (
     Param("veil_tau", "", r"$\tau_\mathrm{veil}$", Prior("uniform", low=0.0, high=5.0),
-          low=0.0, why="an optical depth cannot be negative", group="veil"),
+          low=0.0, why="an optical depth cannot be negative", group="veil",
+          words="veil optical depth at 0.55 µm"),
     Param("veil_cover", "", r"$f_\mathrm{veil}$", Prior("uniform", low=0.0, high=1.0),
-          low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="veil"),
+          low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="veil",
+          words="veil covering fraction"),
     # the radius's limits are the optics table's: teffmc.parameters.parameter_limits
     Param("grain_radius", "um", r"$a$ [µm]", Prior("loguniform", low=0.02, high=5.0),
           low=0.0, open_low=True, shared=True, group="veil",
-          active=lambda m: m.veil == "mie"),
+          active=lambda m: m.veil == "mie",
+          words="grain radius"),
     Param("veil_scatter", "", r"$s_\mathrm{veil}$", Prior("uniform", low=0.0, high=1.0),
           low=0.0, high=1.0, why="a scattered-light fraction lies in [0, 1]", shared=True,
-          group="veil", active=lambda m: m.veil == "mie" and m.scattering),
+          group="veil", active=lambda m: m.veil == "mie" and m.scattering,
+          words="scattered-light factor"),
 )
 
 
 def active(model):
     return model.veil != "none"
+
+
+def setup(wave, model, r_v_prior):
+    """The veil's optics on ``wave`` (:class:`teffmc.dust.Veil`)."""
+    from ..dust.veil import Veil
+
+    return Veil(model.veil, wave, material=model.grain_material,
+                spread_dex=model.grain_spread_dex, scattering=model.scattering,
+                scatter_cone_deg=model.scatter_cone_deg)
+
+
+def factor(veil, p):
+    """Transmission of the veil with its scattered light, shape (n, n_pix)."""
+    n = p["veil_tau"].shape[0]
+    return veil.factor(p["veil_tau"], p["veil_cover"], p.get("grain_radius", np.ones(n)),
+                       p.get("veil_scatter", np.zeros(n)))

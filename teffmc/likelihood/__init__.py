@@ -12,6 +12,7 @@ quadrature.
 
 import numpy as np
 
+from ..components import regions
 from ..errors import OffGridError
 from .mismatch import correlated_loglike_parts
 from .mismatch_loo import correlated_loo_pointwise
@@ -68,9 +69,11 @@ class Posterior:
         ok = None
         for p in params.values():
             inside = self.grid.check_inside(p["teff"], p["logg"], p["mh"])
-            if "patch_cover" in p:
-                inside &= self.grid.check_inside(p["teff"] - p["patch_dteff"], p["logg"],
-                                                 p["mh"])
+            reg = regions(p)
+            for _, teff in reg:     # every surface region on the grid too
+                inside &= self.grid.check_inside(teff, p["logg"], p["mh"])
+            if len(reg) > 1:        # together at most the whole disc
+                inside &= sum(c for c, _ in reg) <= 1.0
             ok = inside if ok is None else ok & inside
         return ok
 

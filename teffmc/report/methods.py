@@ -10,7 +10,8 @@ twice, with LaTeX or Markdown filters, so the two texts say the same.
 import math
 from pathlib import Path, PurePath
 
-from ..parameters import UNITS
+from ..components import COMPONENTS
+from ..parameters import UNITS, WORDS
 from .bibliography import LAW_KEYS, bibtex, short_cite
 from .latex import DERIVED, latex_escape
 
@@ -18,15 +19,7 @@ __all__ = ["methods_context", "render_methods", "references", "prior_text", "ach
 
 TEMPLATES = Path(__file__).with_name("templates")
 PLAIN_UNITS = {"um": "µm", "km/s": "km/s", "": ""}
-NAMES = {"teff": "effective temperature", "logg": "surface gravity", "mh": "metallicity",
-         "a_v": "interstellar extinction A_V", "r_v": "R_V", "theta": "angular diameter",
-         "veil_tau": "veil optical depth at 0.55 µm", "veil_cover": "veil covering fraction",
-         "grain_radius": "grain radius", "jitter": "error scaling (jitter)",
-         "veil_scatter": "scattered-light factor", "patch_cover": "cool-patch fraction",
-         "patch_dteff": "cool-patch temperature difference",
-         "mismatch_amp": "mismatch amplitude", "mismatch_scale": "mismatch correlation length",
-         "mismatch_white": "independent mismatch amplitude", "tio_scale": "TiO opacity scale",
-         "haze_scale": "line-haze scale"}
+NAMES = WORDS   # declared by teffmc.components (and the grid's nuisances)
 
 
 def _g(x):
@@ -113,7 +106,16 @@ def methods_context(record, summary, *, comparison=None, star=None):
         "comparison": comparison or [], "versions": versions,
         "derived": derived,
         "photometry": any(d.get("kind") == "photometry" for d in data),
+        "switched": switched_sentences(model),
     }
+
+
+def switched_sentences(model):
+    """The ``METHODS`` sentences of the components a run's model switched on
+    (``switches`` of its recorded ModelSpec), registry order."""
+    on = set(model.get("switches") or ())
+    return [c.METHODS for c in COMPONENTS
+            if getattr(c, "SWITCH", None) in on and getattr(c, "METHODS", "")]
 
 
 def _md_escape(s):
