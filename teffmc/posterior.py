@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import DataError
+from .sampling_stop import RHAT_GROUPS, group_walkers
 
 __all__ = ["build", "save", "load", "load_run", "summarise", "draws", "loo"]
 
@@ -113,8 +114,11 @@ def summarise(dt, names):
     diag = {}
     if varying:
         sub = post[varying]
-        diag = {"r_hat": az.rhat(sub), "ess_bulk": az.ess(sub, method="bulk"),
-                "ess_tail": az.ess(sub, method="tail")}
+        # R-hat on the walkers pooled into RHAT_GROUPS chains, as the stop rule checks it
+        # (why: teffmc.sampling_stop.split_rhat); ESS with each walker a chain
+        diag = {"r_hat": {n: az.rhat(group_walkers(post[n].values.T, RHAT_GROUPS).T)
+                          for n in varying},
+                "ess_bulk": az.ess(sub, method="bulk"), "ess_tail": az.ess(sub, method="tail")}
     out = {}
     for n in names:
         x = post[n].values.ravel()
@@ -122,7 +126,7 @@ def summarise(dt, names):
         out[n] = {"median": float(p50), "p16": float(p16), "p84": float(p84),
                   "mean": float(x.mean()), "sd": float(x.std(ddof=1))}
         for k, v in diag.items():
-            out[n][k] = float(v[n].values) if n in varying else float("nan")
+            out[n][k] = float(np.asarray(v[n])) if n in varying else float("nan")
         if not diag:
             out[n].update(r_hat=float("nan"), ess_bulk=float("nan"), ess_tail=float("nan"))
     return out

@@ -11,7 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .sampling_stop import BURN_TAUS, RHAT_MAX, TAU_FACTOR, TAU_RTOL, THIN_TAUS
+from .sampling_stop import (BURN_TAUS, RHAT_GROUPS, RHAT_MAX, RHAT_WALKER_MAX, TAU_FACTOR,
+                            TAU_RTOL, THIN_TAUS)
 
 __all__ = ["run_provenance", "data_labels", "MOVES"]
 
@@ -77,6 +78,7 @@ def run_provenance(prep):
                     "nlive": s.nlive,
                     "moves": [{"name": n, "weight": w, "ref": r} for n, w, r in MOVES],
                     "tau_factor": TAU_FACTOR, "tau_rtol": TAU_RTOL, "rhat_max": RHAT_MAX,
+                    "rhat_groups": RHAT_GROUPS, "rhat_walker_max": RHAT_WALKER_MAX,
                     "burn_taus": BURN_TAUS, "thin_taus": THIN_TAUS,
                     "log_coordinates": [n for n, p in zip(prep.space.names, prep.space.priors)
                                         if p.kind == "loguniform"]},

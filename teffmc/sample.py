@@ -20,8 +20,8 @@ from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
 from teffmc.interrupt import DeferredInterrupt
 from teffmc.sampling_checkpoint import memory_backend, resume_state, write_checkpoint
 from teffmc.sampling_start import find_start, initial_ball
-from teffmc.sampling_stop import (RHAT_MAX, TAU_FACTOR, TAU_RTOL, autocorr_time, burn_thin,
-                                   split_rhat, stop_rule)
+from teffmc.sampling_stop import (RHAT_GROUPS, RHAT_MAX, RHAT_WALKER_MAX, TAU_FACTOR,
+                                   TAU_RTOL, autocorr_time, burn_thin, split_rhat, stop_rule)
 
 __all__ = [
     "SampleResult",
@@ -169,12 +169,20 @@ def _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale):
 
 
 def _rhat_check(chain, tau, n, names, rhat_max, text):
-    """The tau rule passed: confirm with R-hat on the draws the run would keep."""
+    """The tau rule passed: confirm with R-hat on the draws the run would keep.
+
+    ``rhat_max`` applies to the walkers pooled into RHAT_GROUPS chains, RHAT_WALKER_MAX
+    to each walker as a chain (why both: :func:`teffmc.sampling_stop.split_rhat`).
+    """
     burn, thin = burn_thin(tau, n, True)
-    r = split_rhat(chain[burn + thin - 1::thin])  # emcee get_chain(discard, thin) indexing
+    kept = chain[burn + thin - 1::thin]  # emcee get_chain(discard, thin) indexing
+    r, rw = split_rhat(kept, groups=RHAT_GROUPS), split_rhat(kept)
     k = int(np.nanargmax(r)) if np.any(np.isfinite(r)) else 0
-    text = f"{text}; max R-hat {r[k]:.3f} ({names[k]}, limit {rhat_max})"
-    return bool(np.all(np.nan_to_num(r, nan=1.0) < rhat_max)), text
+    j = int(np.nanargmax(rw)) if np.any(np.isfinite(rw)) else 0
+    text = (f"{text}; max R-hat {r[k]:.3f} ({names[k]}, limit {rhat_max}), walker-level "
+            f"{rw[j]:.3f} ({names[j]}, limit {RHAT_WALKER_MAX})")
+    ok = np.all(np.nan_to_num(r, nan=1.0) < rhat_max)
+    return bool(ok and np.all(np.nan_to_num(rw, nan=1.0) < RHAT_WALKER_MAX)), text
 
 
 def _initial_state(log_prob, x0, checkpoint, resume, names, n_walkers, seed, ball_scale,
@@ -248,8 +256,9 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
         Start-ball standard deviation relative to ``|x0|`` (absolute where x0 is 0).
     rhat_max : float or None, optional
         Also require the rank-normalised split R-hat of the burned and thinned draws
-        (walkers as chains; the statistic the summary reports) below this for every
-        parameter before stopping; None switches the check off.
+        (walkers pooled into RHAT_GROUPS chains; the statistic the summary reports)
+        below this, and with each walker a chain below RHAT_WALKER_MAX, for every
+        parameter before stopping; None switches both checks off.
 
     Returns
     -------
