@@ -22,8 +22,17 @@ from .errors import ConfigError, DataError, TeffmcError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
 from .parameters import ParameterSpace
-from .runfolder import (MARKER, check_out_folder, check_replace, discard, finish,
-                        is_complete, remove_leftovers, run_lock, write_marker)
+from .runfolder import (
+    MARKER,
+    check_out_folder,
+    check_replace,
+    discard,
+    finish,
+    is_complete,
+    remove_leftovers,
+    run_lock,
+    write_marker,
+)
 
 __all__ = ["fit", "FitResult", "prepare", "Prepared"]
 

@@ -20,8 +20,15 @@ from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
 from teffmc.interrupt import DeferredInterrupt
 from teffmc.sampling_checkpoint import memory_backend, resume_state, write_checkpoint
 from teffmc.sampling_start import find_start, initial_ball
-from teffmc.sampling_stop import (RHAT_MAX, TAU_FACTOR, TAU_RTOL, autocorr_time, burn_thin,
-                                   split_rhat, stop_rule)
+from teffmc.sampling_stop import (
+    RHAT_MAX,
+    TAU_FACTOR,
+    TAU_RTOL,
+    autocorr_time,
+    burn_thin,
+    split_rhat,
+    stop_rule,
+)
 
 __all__ = [
     "SampleResult",

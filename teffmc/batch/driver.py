@@ -9,8 +9,14 @@ from ..errors import ClusterError, ConfigError
 from ..runfolder import batch_lock
 from .engine import Engine
 from .plan import finished_summary, plan_stars
-from .tables import TABLE, plain_row, previous_wall_times, row_from_summary, \
-    survey_table, write_tables
+from .tables import (
+    TABLE,
+    plain_row,
+    previous_wall_times,
+    row_from_summary,
+    survey_table,
+    write_tables,
+)
 
 __all__ = ["fit_many", "STATUSES", "LOG", "ENGINE"]
 

@@ -154,11 +154,15 @@ def write_run_products(folder, formats=FORMATS, *, dt=None, summary=None, compar
 def run_figures(dt, summary, log_text, *, comparison=None):
     """``{file stem: (Figure, caption)}`` of one run (and its comparison, if any)."""
     from .. import posterior as post_mod
-    from .figures import CORNER_MAX, corner_fig, fit_fig, panels_from_posterior
-    from .figures_more import (budget_fig, delta_teff_fig, diagnostics_fig, hypotheses_fig,
-                               later_epochs)
-
     from ..goodness import BAD_CHI2_NU
+    from .figures import CORNER_MAX, corner_fig, fit_fig, panels_from_posterior
+    from .figures_more import (
+        budget_fig,
+        delta_teff_fig,
+        diagnostics_fig,
+        hypotheses_fig,
+        later_epochs,
+    )
 
     converged = bool(summary.get("converged"))
     title = dt.attrs.get("title", "")
