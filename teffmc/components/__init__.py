@@ -66,7 +66,7 @@ def all_parameters():
 
 
 def declared(name):
-    """The :class:`Param` called ``name`` (KeyError if none)."""
+    """Return the :class:`Param` called ``name`` (KeyError if none)."""
     return all_parameters()[name]
 
 

@@ -36,4 +36,9 @@ class Param:
     words: str = ""
 
     def default_prior(self, model, grid_bounds):
+        """Return the default :class:`Prior` for a model variant and the grid's bounds.
+
+        ``grid_bounds`` is ``{axis: (low, high)}`` of the grid; only a prior declared as
+        a function reads it or ``model``.
+        """
         return self.prior(model, grid_bounds) if callable(self.prior) else self.prior

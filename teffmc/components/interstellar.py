@@ -21,11 +21,15 @@ PARAMETERS = (
 
 
 def active(model):
+    """Return True: every model variant has interstellar extinction (A_V may be 0)."""
     return True
 
 
 def setup(wave, model, r_v_prior):
-    """The law's curve on ``wave`` (:class:`teffmc.dust.ExtinctionTable`)."""
+    """Tabulate the law's curve on ``wave`` [Angstrom] (:class:`teffmc.dust.ExtinctionTable`).
+
+    At the fixed R_V of a fixed prior, else over the prior's R_V support.
+    """
     from ..dust.extinction import ExtinctionTable
 
     if r_v_prior.fixed:
@@ -35,5 +39,5 @@ def setup(wave, model, r_v_prior):
 
 
 def log10_transmission(table, p):
-    """log10 of the interstellar transmission, -0.4 A_lambda, shape (n, n_pix)."""
+    """Return the log10 interstellar transmission, -0.4 A_lambda, shape (n, n_pix)."""
     return -0.4 * p["a_v"][:, None] * table.curve(p["r_v"])

@@ -37,4 +37,5 @@ PARAMETERS = (
 
 
 def active(model):
+    """Return whether the model variant has at least one correlated mismatch term."""
     return bool(model.mismatch_terms)

@@ -24,6 +24,7 @@ AFTER_NUISANCES = True
 
 
 def active(model):
+    """Return whether the model variant has cool patches (``[model] patches``)."""
     return model.patches
 
 

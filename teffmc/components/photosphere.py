@@ -31,4 +31,5 @@ PARAMETERS = (
 
 
 def active(model):
+    """Return True: every model variant has a photosphere."""
     return True

@@ -40,6 +40,7 @@ METHODS = ("Hot surface spots are included: a fraction of the disc at a higher e
 
 
 def active(model):
+    """Return whether the model variant's config turns the hot spots on."""
     return SWITCH in model.switches
 
 

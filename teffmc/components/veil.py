@@ -32,11 +32,12 @@ PARAMETERS = (
 
 
 def active(model):
+    """Return whether the model variant has a veil (grey or Mie, not ``"none"``)."""
     return model.veil != "none"
 
 
 def setup(wave, model, r_v_prior):
-    """The veil's optics on ``wave`` (:class:`teffmc.dust.Veil`)."""
+    """Tabulate the veil's optics on ``wave`` [Angstrom] (:class:`teffmc.dust.Veil`)."""
     from ..dust.veil import Veil
 
     return Veil(model.veil, wave, material=model.grain_material,
