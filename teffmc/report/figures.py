@@ -1,5 +1,7 @@
-"""The run's figures, journal-ready (see :mod:`teffmc.report.style`): corner, fit with
-residuals, and the old single-file entry points ``corner_figure``/``fit_figure``.
+"""The run's figures, journal-ready (see :mod:`teffmc.report.style`): corner and fit.
+
+The fit comes with residuals; ``corner_figure``/``fit_figure`` are the old single-file
+entry points.
 
 Builders (``*_fig``) return a matplotlib Figure; :func:`teffmc.report.style.save` writes
 it as PDF and PNG. The other figures (hypotheses, budget, Delta Teff, diagnostics) are in
@@ -50,8 +52,10 @@ def _cuts(x):
 
 
 def masked_gaps(x):
-    """``[(lo, hi)]``: wavelength ranges between used pixels wider than 5 median steps
-    (the masked ranges, as the fitted pixels show them)."""
+    """Return ``[(lo, hi)]``, the wavelength ranges between used pixels > 5 median steps.
+
+    These are the masked ranges, as the fitted pixels show them.
+    """
     x = np.asarray(x, float)
     if x.size < 3:
         return []
@@ -70,8 +74,10 @@ def param_label(name):
 
 
 def _head(fig, title, converged):
-    """The figure's title (the star's name, wrapped to the figure's width) and, for a run
-    that did not converge, the caution in red."""
+    """Write the figure's title and, for a run that did not converge, the caution in red.
+
+    The title is the star's name, wrapped to the figure's width.
+    """
     import textwrap
 
     # about 10 characters of 9 pt text per inch, with room to spare
@@ -92,8 +98,11 @@ def corner_order(names):
 
 @style.styled
 def corner_fig(samples, names, *, truths=None, converged=True, title=None):
-    """Corner plot: marginal histograms and 39 % / 86 % (1 and 2 sigma of a 2-D normal)
-    highest-density contours of the pairs, for up to :data:`CORNER_MAX` parameters."""
+    """Draw the corner plot of up to :data:`CORNER_MAX` parameters.
+
+    Marginal histograms and 39 % / 86 % (1 and 2 sigma of a 2-D normal) highest-density
+    contours of the pairs.
+    """
     from matplotlib.ticker import MaxNLocator, NullLocator
 
     samples = np.asarray(samples, float)
@@ -206,8 +215,10 @@ def _spectrum(pan, ax, rax, models):
 
 
 def _flux_scale(data):
-    """A power of ten near the data's median, written into the axis label (no offset
-    text above the axis)."""
+    """Return a power of ten near the data's median, for the axis label.
+
+    It is written into the label, so there is no offset text above the axis.
+    """
     med = float(np.nanmedian(np.abs(np.asarray(data, float))))
     return 10.0 ** np.floor(np.log10(med)) if med > 0 and np.isfinite(med) else 1.0
 
@@ -249,9 +260,11 @@ def _band_names(ax, um, d, bands):
 
 @style.styled
 def fit_fig(panels, *, converged=True, title=None, models=None):
-    """Data, model and normalised residuals: one pair of axes per data set, epochs in
-    rows. Masked ranges are shaded. ``models`` (hypotheses overlaid) maps each panel's
-    ``key``/index to ``[(label, draws)]``; by default the panel's own ``draws``."""
+    """Draw data, model and normalised residuals: one pair of axes per data set.
+
+    Epochs in rows; masked ranges are shaded. ``models`` (hypotheses overlaid) maps each
+    panel's ``key``/index to ``[(label, draws)]``; by default the panel's own ``draws``.
+    """
     from matplotlib.ticker import MaxNLocator
 
     rows = _layout(panels)
@@ -302,5 +315,5 @@ def corner_figure(samples, names, path, *, truths=None, converged=True, title=No
 
 
 def fit_figure(panels, path, *, converged=True, title=None):
-    """Data, model and residuals saved to ``path`` (see :func:`fit_fig`)."""
+    """Save data, model and residuals to ``path`` (see :func:`fit_fig`)."""
     _save_one(fit_fig(panels, converged=converged, title=title), path, converged)

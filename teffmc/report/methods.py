@@ -23,14 +23,16 @@ NAMES = WORDS   # declared by teffmc.components (and the grid's nuisances)
 
 
 def _g(x):
-    """A number as given in the config: 3000.0 -> 3000, 0.05 -> 0.05."""
+    """Format a number as given in the config: 3000.0 -> 3000, 0.05 -> 0.05."""
     x = float(x)
     return f"{x:.0f}" if x == round(x) and abs(x) < 1e15 else f"{x:.6g}"
 
 
 def prior_text(prior, unit=""):
-    """Plain words for one prior of run.toml (``{"dist": "uniform", "low": ..}`` or
-    ``{"fixed": v}``)."""
+    """Return plain words for one prior of run.toml.
+
+    ``prior`` is ``{"dist": "uniform", "low": ..}`` or ``{"fixed": v}``.
+    """
     u = f" {PLAIN_UNITS.get(unit, unit)}" if PLAIN_UNITS.get(unit, unit) else ""
     if "fixed" in prior:
         return f"fixed at {_g(prior['fixed'])}{u}"
@@ -45,9 +47,11 @@ def prior_text(prior, unit=""):
 
 
 def achieved(summary):
-    """Worst R-hat and smallest bulk and tail ESS over the sampled parameters:
+    """Return the worst R-hat and smallest bulk and tail ESS over the sampled parameters.
+
     ``{"r_hat": (value, name), "ess_bulk": ..., "ess_tail": ...}`` (None when no
-    parameter has them)."""
+    parameter has them).
+    """
     out = {}
     for key, pick in (("r_hat", max), ("ess_bulk", min), ("ess_tail", min)):
         vals = [(s[key], n) for n, s in (summary.get("parameters") or {}).items()
@@ -111,8 +115,10 @@ def methods_context(record, summary, *, comparison=None, star=None):
 
 
 def switched_sentences(model):
-    """The ``METHODS`` sentences of the components a run's model switched on
-    (``switches`` of its recorded ModelSpec), registry order."""
+    """Return the ``METHODS`` sentences of the components a run's model switched on.
+
+    ``switches`` of its recorded ModelSpec, in registry order.
+    """
     on = set(model.get("switches") or ())
     return [c.METHODS for c in COMPONENTS
             if getattr(c, "SWITCH", None) in on and getattr(c, "METHODS", "")]
@@ -133,8 +139,10 @@ def _cite_tex(keys):
 
 
 def render_methods(ctx, fmt):
-    """``(text, cited keys)``: the methods text in ``fmt`` ("tex" or "md") from
-    :func:`methods_context` and the BibTeX keys it cites, in order."""
+    """Render the methods text in ``fmt`` ("tex" or "md") from :func:`methods_context`.
+
+    Returns ``(text, cited keys)``: the BibTeX keys it cites, in order.
+    """
     import jinja2
 
     cited = []
