@@ -113,9 +113,12 @@ def _check_limits(base, prior, model, file, key):
 
 
 def _checked_priors(config, defaults, sibling, labels, file):
-    """The default priors overridden by the config's, each checked: a parameter of this
-    model (a sibling hypothesis's is skipped), a known epoch label, no per-epoch prior of
-    a shared parameter, > 0 where it must be, within the parameter's limits."""
+    """Return the default priors overridden by the config's, each checked.
+
+    A parameter of this model (a sibling hypothesis's is skipped), a known epoch label, no
+    per-epoch prior of a shared parameter, > 0 where it must be, within the parameter's
+    limits.
+    """
     multi = len(labels) > 1
     priors = dict(defaults)
     for key, prior in config.priors.items():
@@ -143,7 +146,7 @@ def _checked_priors(config, defaults, sibling, labels, file):
 
 
 def _check_grid_ranges(priors, grid_bounds, file):
-    """The priors of the grid's axes stay inside the grid."""
+    """Check that the priors of the grid's axes stay inside the grid."""
     for axis in ("teff", "logg", "mh"):
         for key in [k for k in priors if k.partition("@")[0] == axis]:
             lo, hi = priors[key].support
@@ -192,7 +195,7 @@ class ParameterSpace:
         self.base_names = list(defaults)
 
     def prior_of(self, base, label=None):
-        """The prior of a base parameter in epoch ``label`` (default: the first epoch)."""
+        """Return the prior of a base parameter in epoch ``label`` (default: the first epoch)."""
         slot = self._slots[(label or self.labels[0], base)]
         if slot.column is None:
             return Prior("fixed", value=slot.value)
@@ -215,6 +218,7 @@ class ParameterSpace:
 
     @property
     def ndim(self):
+        """Return the number of sampled parameters (the fixed ones aside)."""
         return len(self.names)
 
     def log_prior(self, x):
@@ -226,6 +230,7 @@ class ParameterSpace:
         return lp
 
     def sample_prior(self, rng, n):
+        """Draw ``n`` points from the priors with ``rng``, shape (n, ndim)."""
         return np.column_stack([pr.sample(rng, n) for pr in self.priors])
 
     def epoch_values(self, x, label):
@@ -248,4 +253,5 @@ class ParameterSpace:
         return out
 
     def priors_dict(self):
+        """Return ``{name: prior as a plain dict}`` of the sampled parameters (run.toml)."""
         return {n: p.to_dict() for n, p in zip(self.names, self.priors)}

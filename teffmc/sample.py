@@ -176,7 +176,7 @@ def _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale):
 
 
 def _rhat_check(chain, tau, n, names, rhat_max, text):
-    """The tau rule passed: confirm with R-hat on the draws the run would keep."""
+    """Confirm a passed tau rule with R-hat on the draws the run would keep."""
     burn, thin = burn_thin(tau, n, True)
     r = split_rhat(chain[burn + thin - 1::thin])  # emcee get_chain(discard, thin) indexing
     k = int(np.nanargmax(r)) if np.any(np.isfinite(r)) else 0
@@ -203,7 +203,7 @@ def _initial_state(log_prob, x0, checkpoint, resume, names, n_walkers, seed, bal
 
 
 def _check(sampler, tau_at, n, check_every, names, min_steps, tau_factor, tau_rtol, rhat_max):
-    """The stop rule at step n: (tau, converged, text)."""
+    """Apply the stop rule at step n: return (tau, converged, text)."""
     prev = ((n - 1) // check_every) * check_every
     tau = tau_at(n)
     converged, text = stop_rule(n, tau, tau_at(prev), names=names, min_steps=min_steps,
