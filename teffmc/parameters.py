@@ -43,21 +43,16 @@ LABELS = {**{n: d.label for n, d in _DECL.items()}, "tio_scale": r"$s_\mathrm{Ti
 
 
 def parameter_limits(base, model):
-    """(low, high, why) the core accepts for one parameter of ``model``, or None.
+    """Return (low, high, why) the core accepts for one parameter of ``model``, or None.
 
-    The declared physical limits (:mod:`teffmc.components`), and where they depend on
-    the model: R_V within the extinction law's calibrated range, the grain radius within
-    the optics table's.
+    The limits its component declares (:mod:`teffmc.components`): the ``limits(model)``
+    of its :class:`~teffmc.components.Param` where they depend on the model variant
+    (R_V on the extinction law, the grain radius on the optics table), else its fixed
+    physical limits.
     """
-    if base == "r_v":
-        from .dust.extinction import law_ranges
-
-        lo, hi = law_ranges(model.extinction_law)[1]
-        return lo, hi, f"the R_V range of extinction law {model.extinction_law}"
-    if base == "grain_radius":
-        from .dust.mietable import RADIUS_RANGE
-
-        return (*RADIUS_RANGE, "the grain radii [micron] of the optics table")
+    d = _DECL.get(base)
+    if d is not None and d.limits is not None:
+        return d.limits(model)
     return LIMITS.get(base)
 
 

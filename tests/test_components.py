@@ -81,3 +81,25 @@ def test_every_component_file_is_registered():
     files = {f.stem for f in folder.glob("*.py")} - {"__init__", "base"}
     assert set(REGISTRY) == files and len(REGISTRY) == len(set(REGISTRY))
     assert [c.__name__.rpartition(".")[2] for c in COMPONENTS] == list(REGISTRY)
+
+
+def test_model_dependent_limits_are_declared_by_the_components(monkeypatch):
+    # R_V's limits are the law's calibrated range (dust_extinction's Rv_range), the grain
+    # radius's the optics table's (teffmc.dust.mietable.RADIUS_RANGE); both are declared
+    # as a ``limits(model)`` hook of the Param, and parameter_limits only asks the hook
+    from dataclasses import replace
+
+    from teffmc.components import declared
+    from teffmc.dust.extinction import LAWS, law_ranges
+    from teffmc.dust.mietable import RADIUS_RANGE
+
+    for law in LAWS:
+        m = ModelSpec(extinction_law=law)
+        lo, hi, why = P.parameter_limits("r_v", m)
+        assert (lo, hi) == law_ranges(law)[1] and law in why
+        assert declared("r_v").limits(m) == (lo, hi, why)
+    assert P.parameter_limits("grain_radius", FULL)[:2] == RADIUS_RANGE
+    # any parameter's hook is used, in place of its fixed limits
+    hooked = replace(declared("a_v"), limits=lambda model: (1.0, 2.0, model.veil))
+    monkeypatch.setitem(P._DECL, "a_v", hooked)
+    assert P.parameter_limits("a_v", FULL) == (1.0, 2.0, "mie")

@@ -3,8 +3,9 @@
 A component is one module listed in :data:`COMPONENTS`. It declares
 
 ``PARAMETERS``
-    its parameters (:class:`Param`: name, unit, label, physical limits, default prior,
-    whether epochs share it by default, its dimming-budget group);
+    its parameters (:class:`Param`: name, unit, label, physical limits -- fixed, or a
+    function of the model variant --, default prior, whether epochs share it by
+    default, its dimming-budget group);
 ``active(model)``
     whether a model variant has it;
 ``SWITCH`` (optional)

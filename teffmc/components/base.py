@@ -16,6 +16,9 @@ class Param:
     ``prior`` is the default prior, or a function ``(model, grid_bounds) -> Prior`` when
     it depends on them; ``low``/``high`` the physical limits any prior must respect
     (``why`` says where they come from; ``open_low`` for a strict ``> low``);
+    ``limits`` a function ``model -> (low, high, why)`` when the limits depend on the
+    model variant (R_V on the extinction law, the grain radius on the optics table): the
+    config check then uses its answer instead of ``low``/``high``;
     ``shared`` whether epochs share it unless the config says otherwise; ``group`` its
     dimming-budget group (``teffmc.budget``: temperature, veil, radius) or None;
     ``active`` an extra condition on the model variant beyond the component's; ``words``
@@ -30,6 +33,7 @@ class Param:
     high: float = math.inf
     why: str = ""
     open_low: bool = False
+    limits: Callable | None = None
     shared: bool = False
     group: str | None = None
     active: Callable | None = None

@@ -8,15 +8,23 @@ when R_V is free).
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active", "setup", "log10_transmission"]
+__all__ = ["PARAMETERS", "active", "setup", "log10_transmission", "r_v_limits"]
+
+
+def r_v_limits(model):
+    """Return (low, high, why): the calibrated R_V range of the model's extinction law."""
+    from ..dust.extinction import law_ranges
+
+    lo, hi = law_ranges(model.extinction_law)[1]
+    return lo, hi, f"the R_V range of extinction law {model.extinction_law}"
+
 
 PARAMETERS = (
     Param("a_v", "mag", r"$A_V$", Prior("uniform", low=0.0, high=10.0), low=0.0,
           why="extinction cannot be negative", shared=True, group="veil",
           words="interstellar extinction A_V"),
-    # R_V's limits depend on the law: teffmc.parameters.parameter_limits asks the law
-    Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), shared=True, group="veil",
-          words="R_V"),
+    Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), limits=r_v_limits, shared=True,
+          group="veil", words="R_V"),
 )
 
 

@@ -10,7 +10,15 @@ import numpy as np
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active", "setup", "factor"]
+__all__ = ["PARAMETERS", "active", "setup", "factor", "radius_limits"]
+
+
+def radius_limits(model):
+    """Return (low, high, why): the grain radii [micron] the optics table covers."""
+    from ..dust.mietable import RADIUS_RANGE
+
+    return (*RADIUS_RANGE, "the grain radii [micron] of the optics table")
+
 
 PARAMETERS = (
     Param("veil_tau", "", r"$\tau_\mathrm{veil}$", Prior("uniform", low=0.0, high=5.0),
@@ -19,9 +27,8 @@ PARAMETERS = (
     Param("veil_cover", "", r"$f_\mathrm{veil}$", Prior("uniform", low=0.0, high=1.0),
           low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="veil",
           words="veil covering fraction"),
-    # the radius's limits are the optics table's: teffmc.parameters.parameter_limits
     Param("grain_radius", "um", r"$a$ [µm]", Prior("loguniform", low=0.02, high=5.0),
-          low=0.0, open_low=True, shared=True, group="veil",
+          low=0.0, open_low=True, limits=radius_limits, shared=True, group="veil",
           active=lambda m: m.veil == "mie",
           words="grain radius"),
     Param("veil_scatter", "", r"$s_\mathrm{veil}$", Prior("uniform", low=0.0, high=1.0),
