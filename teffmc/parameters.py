@@ -16,7 +16,7 @@ from .errors import ConfigError
 from .priors import Prior
 
 __all__ = ["ParameterSpace", "model_parameters", "parameter_limits", "UNITS", "LABELS",
-           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS", "WORDS"]
+           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS", "WORDS", "CORNER_RANK"]
 
 _DECL = all_parameters()
 #: every parameter any model variant can have (declared by teffmc.components)
@@ -40,6 +40,8 @@ WORDS = {**{n: d.words or n for n, d in _DECL.items()}, "tio_scale": "TiO opacit
          "haze_scale": "line-haze scale"}
 LABELS = {**{n: d.label for n, d in _DECL.items()}, "tio_scale": r"$s_\mathrm{TiO}$",
           "haze_scale": r"$s_\mathrm{haze}$", "distance_pc": "d [pc]"}
+#: the corner plot's order of the parameters that declare one (lower first)
+CORNER_RANK = {n: d.corner_rank for n, d in _DECL.items() if d.corner_rank is not None}
 
 
 def parameter_limits(base, model):

@@ -103,3 +103,21 @@ def test_model_dependent_limits_are_declared_by_the_components(monkeypatch):
     hooked = replace(declared("a_v"), limits=lambda model: (1.0, 2.0, model.veil))
     monkeypatch.setitem(P._DECL, "a_v", hooked)
     assert P.parameter_limits("a_v", FULL) == (1.0, 2.0, "mie")
+
+
+def test_corner_order_comes_from_the_declarations():
+    # the corner plot's order (physical parameters first, in the order the figure had
+    # when it was a hand-written list; common practice, no source) is each parameter's
+    # declared corner_rank; undeclared ones follow in the sampled order
+    from teffmc.report.figures import CORNER_MAX, corner_order
+
+    before = ["teff", "a_v", "theta", "veil_tau", "grain_radius", "veil_cover", "r_v", "logg",
+              "mh", "patch_cover", "patch_dteff"]
+    ranked = sorted(P.CORNER_RANK, key=P.CORNER_RANK.get)
+    assert ranked[:len(before)] == before and set(ranked) <= set(all_parameters())
+    names = list(P.model_parameters(FULL, BOUNDS))
+    assert corner_order(names) == before[:CORNER_MAX]
+    # epochs side by side; unranked (jitter, nuisance) after the ranked, in their order
+    names = ["jitter", "tio_scale", "teff@late", "mh", "teff@early", "patch_cover"]
+    assert corner_order(names) == ["teff@late", "teff@early", "mh", "patch_cover",
+                                   "jitter", "tio_scale"]

@@ -22,7 +22,10 @@ class Param:
     ``shared`` whether epochs share it unless the config says otherwise; ``group`` its
     dimming-budget group (``teffmc.budget``: temperature, veil, radius) or None;
     ``active`` an extra condition on the model variant beyond the component's; ``words``
-    its name in plain words for the methods text (``teffmc.report.methods``).
+    its name in plain words for the methods text (``teffmc.report.methods``);
+    ``corner_rank`` its place in the corner plot (``teffmc.report.figures``: lower
+    first, in steps of 10 so a new parameter can go between two; None: after the ranked
+    ones, in the sampled order).
     """
 
     name: str
@@ -38,6 +41,7 @@ class Param:
     group: str | None = None
     active: Callable | None = None
     words: str = ""
+    corner_rank: int | None = None
 
     def default_prior(self, model, grid_bounds):
         """Return the default :class:`Prior` for a model variant and the grid's bounds.

@@ -22,9 +22,9 @@ def r_v_limits(model):
 PARAMETERS = (
     Param("a_v", "mag", r"$A_V$", Prior("uniform", low=0.0, high=10.0), low=0.0,
           why="extinction cannot be negative", shared=True, group="veil",
-          words="interstellar extinction A_V"),
+          words="interstellar extinction A_V", corner_rank=20),
     Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), limits=r_v_limits, shared=True,
-          group="veil", words="R_V"),
+          group="veil", words="R_V", corner_rank=70),
 )
 
 

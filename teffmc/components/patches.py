@@ -13,11 +13,11 @@ __all__ = ["PARAMETERS", "active", "region"]
 PARAMETERS = (
     Param("patch_cover", "", r"$f_\mathrm{patch}$", Prior("uniform", low=0.0, high=0.9),
           low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="temperature",
-          words="cool-patch fraction"),
+          words="cool-patch fraction", corner_rank=100),
     Param("patch_dteff", "K", r"$\Delta T_\mathrm{patch}$",
           Prior("uniform", low=0.0, high=1500.0), low=0.0,
           why="the patches are cooler than the photosphere", group="temperature",
-          words="cool-patch temperature difference"),
+          words="cool-patch temperature difference", corner_rank=110),
 )
 #: after the grid's nuisances in the sampled vector (the layout of earlier runs)
 AFTER_NUISANCES = True

@@ -9,11 +9,12 @@ it as PDF and PNG. The other figures (hypotheses, budget, Delta Teff, diagnostic
 """
 
 import json
+import math
 from pathlib import Path
 
 import numpy as np
 
-from ..parameters import LABELS, UNITS
+from ..parameters import CORNER_RANK, LABELS, UNITS
 from . import style
 from .style import CAUTION, COLUMN, PAGE, plain_text, unit_label
 
@@ -29,8 +30,6 @@ DERIVED_LABELS = {"f_bol": (r"$f_\mathrm{bol}$", "W m^-2"), "radius": (r"$R$", "
                   "luminosity": (r"$L$", "L_sun"), "v_mag": (r"$V$", "mag"),
                   "delta_teff": (r"$\Delta T_\mathrm{eff}$", "K"),
                   "delta_v": (r"$\Delta V$", "mag"), "distance_pc": ("$d$", "pc")}
-PRIORITY = ("teff", "a_v", "theta", "veil_tau", "grain_radius", "veil_cover", "r_v", "logg",
-            "mh", "patch_cover", "patch_dteff")
 
 
 def gapped(x, *ys):
@@ -89,10 +88,14 @@ def _head(fig, title, converged):
 
 
 def corner_order(names):
-    """Up to CORNER_MAX names, physical parameters first (PRIORITY order)."""
+    """Return up to CORNER_MAX names, in the order the components declare.
+
+    By each parameter's ``corner_rank`` (:data:`teffmc.parameters.CORNER_RANK`: the
+    physical parameters; the epochs of one, ``name@label``, side by side), then the
+    others in the order of ``names``.
+    """
     def rank(n):
-        base = n.partition("@")[0]
-        return PRIORITY.index(base) if base in PRIORITY else len(PRIORITY)
+        return CORNER_RANK.get(n.partition("@")[0], math.inf)
     return sorted(names, key=lambda n: (rank(n), names.index(n)))[:CORNER_MAX]
 
 
