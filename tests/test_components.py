@@ -1,6 +1,7 @@
 """The parameter declarations of the model components and the tables built from them."""
 
 import math
+import re
 
 import pytest
 
@@ -121,3 +122,52 @@ def test_corner_order_comes_from_the_declarations():
     names = ["jitter", "tio_scale", "teff@late", "mh", "teff@early", "patch_cover"]
     assert corner_order(names) == ["teff@late", "teff@early", "mh", "patch_cover",
                                    "jitter", "tio_scale"]
+
+
+def _methods(model, fmt="md"):
+    from teffmc.report.methods import methods_context, render_methods
+
+    record = {"teffmc": {"provenance": {"model": model}, "versions": {"miepython": "3.0"}}}
+    return render_methods(methods_context(record, {}), fmt)
+
+
+def _recorded(**kw):
+    # a model as run.toml records it (teffmc.provenance: every ModelSpec field)
+    return {k: list(v) if isinstance(v, tuple) else v for k, v in vars(ModelSpec(**kw)).items()}
+
+
+def test_methods_text_takes_each_components_sentence():
+    # the model paragraph is the components' own METHODS (or METHODS_OFF) sentences;
+    # a grey veil is not described as Mie grains (dust/veil.py: tau independent of
+    # wavelength, no scattering) and cites no Mie code
+    grey, keys = _methods(_recorded(veil="grey"))
+    assert "grey dust" in grey and "Mie" not in grey and "miepython" not in keys
+    mie, keys = _methods(_recorded(veil="mie", grain_material="carbon", scattering=True))
+    assert "Mie theory" in mie and "carbon grains" in mie and "miepython" in keys
+    assert "cone of 90 degrees is added" in mie
+    assert "No circumstellar veil is included." in _methods(_recorded())[0]
+    text = _methods(_recorded(patches=True, switches=("spots",)))[0]
+    assert "Cool surface patches are included" in text and "Hot surface spots" in text
+    assert text.index("Interstellar extinction") < text.index("Cool surface patches") \
+        < text.index("Hot surface spots")          # registry order
+    # LaTeX: outside math, every underscore and percent sign escaped
+    tex = _methods(_recorded(veil="mie", patches=True, switches=("spots",)), "tex")[0]
+    model = tex.split(r"\paragraph{Model.}")[1].split(r"\paragraph{Priors.}")[0]
+    plain = re.sub(r"\$[^$]*\$", "", model)
+    assert not re.search(r"(?<!\\)[_%&#]", plain), plain
+
+
+def test_a_new_components_sentence_needs_no_template_edit(monkeypatch):
+    # a component's METHODS is a template fragment with the methods text's symbols and
+    # filters: adding a component adds its sentence without touching methods.j2
+    import types
+
+    from teffmc.report import methods
+
+    fake = types.SimpleNamespace(active=lambda m: m.veil == "grey",
+                                 METHODS="A test term of depth {{ tau }} is included.",
+                                 METHODS_OFF="No test term.")
+    monkeypatch.setattr(methods, "COMPONENTS", (*COMPONENTS, fake))
+    assert "A test term of depth τ is included." in _methods(_recorded(veil="grey"))[0]
+    off = _methods(_recorded(), "tex")[0]
+    assert "No test term." in off and "A test term" not in off

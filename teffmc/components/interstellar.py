@@ -8,7 +8,7 @@ when R_V is free).
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active", "setup", "log10_transmission", "r_v_limits"]
+__all__ = ["PARAMETERS", "METHODS", "active", "setup", "log10_transmission", "r_v_limits"]
 
 
 def r_v_limits(model):
@@ -26,6 +26,13 @@ PARAMETERS = (
     Param("r_v", "", r"$R_V$", Prior("fixed", value=3.1), limits=r_v_limits, shared=True,
           group="veil", words="R_V", corner_rank=70),
 )
+
+
+#: what the methods text says (a template fragment: teffmc.components, ``METHODS``)
+METHODS = ("Interstellar extinction follows the {{ law | e }} law "
+           "{{ law_key | cite if law_key else '' }} as implemented in "
+           "{{ 'dust_extinction' | e }} {{ 'Gordon2024' | cite }}, with {{ av }} and {{ rv }} "
+           "as parameters.")
 
 
 def active(model):

@@ -8,7 +8,7 @@ grid physics; the model mixes the two surface fluxes by area.
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active", "region"]
+__all__ = ["PARAMETERS", "METHODS", "active", "region"]
 
 PARAMETERS = (
     Param("patch_cover", "", r"$f_\mathrm{patch}$", Prior("uniform", low=0.0, high=0.9),
@@ -21,6 +21,9 @@ PARAMETERS = (
 )
 #: after the grid's nuisances in the sampled vector (the layout of earlier runs)
 AFTER_NUISANCES = True
+#: what the methods text says when they are on
+METHODS = ("Cool surface patches are included: a fraction of the disc at a lower effective "
+           "temperature, from the same grid, mixed with the photosphere by area.")
 
 
 def active(model):

@@ -10,7 +10,8 @@ import numpy as np
 from ..priors import Prior
 from .base import Param
 
-__all__ = ["PARAMETERS", "active", "setup", "factor", "radius_limits"]
+__all__ = ["PARAMETERS", "METHODS", "METHODS_OFF", "active", "setup", "factor",
+           "radius_limits"]
 
 
 def radius_limits(model):
@@ -36,6 +37,22 @@ PARAMETERS = (
           group="veil", active=lambda m: m.veil == "mie" and m.scattering,
           words="scattered-light factor"),
 )
+
+
+#: what the methods text says with a veil, and without (template fragments:
+#: teffmc.components, ``METHODS``)
+METHODS = (
+    "A circumstellar veil covers a fraction of the stellar disc with dust of optical depth "
+    "{{ tau }} at 0.55 {{ mu }}m; "
+    "{% if model.veil == 'grey' %}it is the same at every wavelength (grey dust), with no "
+    "scattered light"
+    "{% else %}its wavelength dependence is Mie theory (miepython "
+    "{{ versions.get('miepython', '') }}) for {{ model.grain_material | e }} grains with a "
+    "log-normal spread of {{ model.grain_spread_dex | g }} dex in radius"
+    "{% if model.scattering %}, and light scattered back into the beam within a cone of "
+    "{{ model.scatter_cone_deg | g }} degrees is added"
+    "{% else %}; scattered light is not added back{% endif %}{% endif %}.")
+METHODS_OFF = "No circumstellar veil is included."
 
 
 def active(model):

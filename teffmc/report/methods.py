@@ -4,13 +4,17 @@ Built from the run's own files only -- run.toml (the resolved config and
 ``[teffmc.provenance]``: data, grid, model, sampler, stop rule), summary.json (steps,
 burn-in, thinning, achieved R-hat and ESS, goodness of fit) and, for a comparison, the
 rows of compare.json -- through one jinja2 template (``templates/methods.j2``) rendered
-twice, with LaTeX or Markdown filters, so the two texts say the same.
+twice, with LaTeX or Markdown filters, so the two texts say the same. What the model
+paragraph says about each model component is the component's own sentence
+(``METHODS`` / ``METHODS_OFF``, :mod:`teffmc.components`), rendered in the same context.
 """
 
 import math
+from dataclasses import fields
 from pathlib import Path, PurePath
 
 from ..components import COMPONENTS
+from ..config_spec import ModelSpec
 from ..parameters import UNITS, WORDS
 from .bibliography import LAW_KEYS, bibtex, short_cite
 from .latex import DERIVED, latex_escape
@@ -110,18 +114,34 @@ def methods_context(record, summary, *, comparison=None, star=None):
         "comparison": comparison or [], "versions": versions,
         "derived": derived,
         "photometry": any(d.get("kind") == "photometry" for d in data),
-        "switched": switched_sentences(model),
+        "components": component_sentences(model),
     }
 
 
-def switched_sentences(model):
-    """Return the ``METHODS`` sentences of the components a run's model switched on.
+def recorded_model(model):
+    """Return the run's recorded model (run.toml's dict) as a ModelSpec.
 
-    ``switches`` of its recorded ModelSpec, in registry order.
+    Keys the ModelSpec does not know are left out, and the ones the record lacks (a run
+    of an earlier version) take their defaults.
     """
-    on = set(model.get("switches") or ())
-    return [c.METHODS for c in COMPONENTS
-            if getattr(c, "SWITCH", None) in on and getattr(c, "METHODS", "")]
+    known = {f.name for f in fields(ModelSpec)}
+    return ModelSpec(**{k: tuple(v) if isinstance(v, list) else v
+                        for k, v in model.items() if k in known})
+
+
+def component_sentences(model):
+    """Return each component's sentence for a run's recorded model, registry order.
+
+    ``METHODS`` of the components the model has (``active``), ``METHODS_OFF`` of those
+    it has not; template fragments rendered with the methods text (:func:`render_methods`).
+    """
+    spec = recorded_model(model)
+    out = []
+    for c in COMPONENTS:
+        text = getattr(c, "METHODS" if c.active(spec) else "METHODS_OFF", "")
+        if text:
+            out.append(text)
+    return out
 
 
 def _md_escape(s):
@@ -175,6 +195,9 @@ def render_methods(ctx, fmt):
                        teff=r"$T_\mathrm{eff}$" if tex else "Teff",
                        av=r"$A_V$" if tex else "A_V", rv=r"$R_V$" if tex else "R_V",
                        matern=r"Mat\'ern" if tex else "Matérn")
+    # a component's sentence is a template fragment, rendered in the same context
+    env.globals["fragment"] = jinja2.pass_context(
+        lambda context, src: env.from_string(src).render(context.get_all()))
     text = env.get_template("methods.j2").render(**ctx)
     return text, list(dict.fromkeys(cited))
 
