@@ -272,8 +272,8 @@ _show_warning = warnings.showwarning
 def main(argv=None):
     """Run the ``teffmc`` command line on ``argv`` (default: sys.argv) and return its exit code.
 
-    0 on success, 2 for an input error (one line on stderr), 1 when a Dask cluster fails,
-    130 on Ctrl-C or SIGTERM.
+    0 on success, 2 for an input error (one line on stderr), 1 when a Dask cluster fails
+    or a batch has a failed star, 130 on Ctrl-C or SIGTERM.
     """
     args = build_parser().parse_args(argv)
     old_show, warnings.showwarning = warnings.showwarning, _one_line_warnings

@@ -18,7 +18,7 @@ DEFAULT_MISMATCH = "correlated"
 
 @dataclass(frozen=True)
 class SpectrumSpec:
-    """One ``[[epoch.spectra]]`` table: the file, how to read it and its likelihood terms."""
+    """One spectrum of an epoch (``spectra`` entry): the file, how to read it, its terms."""
 
     file: Path
     air: bool | None = None

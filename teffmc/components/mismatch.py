@@ -37,5 +37,5 @@ PARAMETERS = (
 
 
 def active(model):
-    """Return whether the model variant has at least one correlated mismatch term."""
+    """Return whether any spectrum of the model variant has a model-mismatch term."""
     return bool(model.mismatch_terms)

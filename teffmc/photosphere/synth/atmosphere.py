@@ -1,7 +1,7 @@
 """LTE plane-parallel model atmosphere and its emergent surface flux.
 
-It computes T(tau), the hydrostatic structure, the temperature correction toward
-radiative equilibrium, and the emergent surface flux.
+It computes T(tau), the hydrostatic structure and the temperature correction toward
+radiative equilibrium.
 
 Start: grey T(tau) = Teff [3/4 (tau + q(tau))]^(1/4) with the Hopf function q
 (Mihalas 1978, "Stellar Atmospheres", 2nd ed., sec. 3-4; exact q(0) = 1/sqrt(3) and
