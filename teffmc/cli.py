@@ -45,9 +45,11 @@ def _cmd_batch(args):
 
 @contextmanager
 def _sigterm_as_interrupt():
-    """SIGTERM (a job scheduler's stop) raises KeyboardInterrupt, as Ctrl-C does: the same
-    clean stop (``batch`` stops its workers and keeps its table, ``fit`` keeps its
-    checkpoint), one line, exit 130. Only the main thread may set signal handlers."""
+    """Make SIGTERM (a job scheduler's stop) raise KeyboardInterrupt, as Ctrl-C does.
+
+    The same clean stop (``batch`` stops its workers and keeps its table, ``fit`` keeps
+    its checkpoint), one line, exit 130. Only the main thread may set signal handlers.
+    """
     if threading.current_thread() is not threading.main_thread():
         yield
         return
@@ -68,7 +70,7 @@ def _sigterm_as_interrupt():
 
 
 def _interrupted(args):
-    """The line printed on Ctrl-C or SIGTERM: what was kept and how to go on."""
+    """Return the line printed on Ctrl-C or SIGTERM: what was kept and how to go on."""
     if args.command == "batch":
         return "interrupted; finished stars and checkpoints are kept: re-run the same " \
                "command to resume"
@@ -138,7 +140,7 @@ def _cmd_grid(args):
 
 
 def build_parser():
-    """The argparse parser of every command (one `_add_<command>` each)."""
+    """Build the argparse parser of every command (one `_add_<command>` each)."""
     p = argparse.ArgumentParser(prog="teffmc", description=(
         "Effective temperature of a cool star with honest uncertainties, jointly with "
         "interstellar extinction and a circumstellar dust veil."))
@@ -253,8 +255,10 @@ def _add_grid(sub):
 
 
 def _one_line_warnings(message, category, filename, lineno, file=None, line=None):
-    """teffmc's own warnings (e.g. not converged) as one plain line, without the source
-    line a Python warning shows; others as Python shows them."""
+    """Show teffmc's own warnings (e.g. not converged) as one plain line.
+
+    Without the source line a Python warning shows; others as Python shows them.
+    """
     if issubclass(category, ConvergenceWarning):
         print(f"teffmc: warning: {' '.join(str(message).split())}",
               file=file if file is not None else sys.stderr)
@@ -266,6 +270,11 @@ _show_warning = warnings.showwarning
 
 
 def main(argv=None):
+    """Run the ``teffmc`` command line on ``argv`` (default: sys.argv) and return its exit code.
+
+    0 on success, 2 for an input error (one line on stderr), 1 when a Dask cluster fails
+    or a batch has a failed star, 130 on Ctrl-C or SIGTERM.
+    """
     args = build_parser().parse_args(argv)
     old_show, warnings.showwarning = warnings.showwarning, _one_line_warnings
     try:

@@ -26,14 +26,19 @@ K_WARN = 0.7  # Vehtari et al. 2017/2024: k above 0.7 makes the PSIS estimate un
 
 @dataclass
 class Comparison:
+    """What :func:`compare_runs` returns: compare.json rows, the terminal text, the folder."""
+
     rows: list
     text: str
     out: Path | None
 
 
 def compare_runs(run_dirs, out=None):
-    """Compare hypotheses; write compare.json, compare.ecsv and the comparison's report
-    (figures, compare_table.tex/.csv, report.html: teffmc.report.output) into ``out``."""
+    """Compare hypotheses; write compare.json, compare.ecsv and the report into ``out``.
+
+    The comparison's report: figures, compare_table.tex/.csv, report.html
+    (teffmc.report.output).
+    """
     if len(run_dirs) < 2:
         raise DataError("compare needs at least two run folders", file=str(run_dirs[0]))
     runs = [(Path(d), *post_mod.load_run(d)) for d in run_dirs]
@@ -78,8 +83,11 @@ def compare_runs(run_dirs, out=None):
 
 
 def _report(out, rows, runs):
-    """The comparison's report files; when ``out`` is itself one of the runs (the demo's
-    folder), that run's report gains the comparison."""
+    """Write the comparison's report files.
+
+    When ``out`` is itself one of the runs (the demo's folder), that run's report gains
+    the comparison.
+    """
     from .report.output import write_comparison_products, write_run_products
     from .report.tables import strict_json
 
@@ -92,7 +100,7 @@ def _report(out, rows, runs):
 
 
 def _number(v):
-    """A number from summary.json, where null (or absent) means not computed: NaN."""
+    """Return a number from summary.json, NaN where null (or absent) means not computed."""
     return np.nan if v is None else float(v)
 
 

@@ -50,8 +50,10 @@ def _prior(r: _Reader, k):
 
 
 def _mostly_positive(r: _Reader, k, prior):
-    """A normal prior on a distance or parallax is used truncated at 0 (the derived
-    quantities draw its positive part); refuse one with almost nothing above 0."""
+    """Refuse a normal distance or parallax prior with almost nothing above 0.
+
+    Such a prior is used truncated at 0 (the derived quantities draw its positive part).
+    """
     if prior is None or prior.kind != "normal":
         return
     above = float(special.ndtr(prior.mean / prior.sd))
@@ -182,8 +184,10 @@ def _model(m):
 
 
 def _epochs(top, base, model, path):
-    """The epochs, with each spectrum's mismatch default set; and the model with the
-    kinds of mismatch term in use."""
+    """Read the epochs, with each spectrum's mismatch default set.
+
+    Returns them and the model with the kinds of mismatch term in use.
+    """
     epochs_raw = top.get("epoch", list, None, required=True)
     if not epochs_raw:
         raise top.err("epoch", "is empty: give at least one [[epoch]] table with a spectrum "
@@ -228,7 +232,7 @@ def _sampler(s):
 
 
 def _distance(top):
-    """The distance or parallax prior (at most one of them)."""
+    """Read the distance or parallax prior (at most one of them)."""
     distance = _prior(top, "distance_pc")
     parallax = _prior(top, "parallax_mas")
     _mostly_positive(top, "distance_pc", distance)
@@ -271,7 +275,7 @@ def _hypothesis(h, t):
 
 
 def _check_likelihoods(path, model, hyps, epochs):
-    """The Student-t likelihood has no calibration marginalisation and no mismatch term."""
+    """Refuse a Student-t likelihood with a calibration polynomial or a mismatch term."""
     calibrated = any(s.calibration_order >= 0 for e in epochs for s in e.spectra)
     for where, lik in [("model.likelihood", model.likelihood)] + [
             (f"hypothesis[{i}].likelihood", o.get("likelihood")) for i, (_, o) in enumerate(hyps)]:

@@ -1,6 +1,8 @@
-"""The run configuration as frozen dataclasses: what :func:`teffmc.config.load_config`
-returns, with the defaults of every setting (the TOML reading and its validation are in
-:mod:`teffmc.config`)."""
+"""The run configuration as frozen dataclasses: what :func:`teffmc.config.load_config` returns.
+
+With the defaults of every setting (the TOML reading and its validation are in
+:mod:`teffmc.config`).
+"""
 
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -16,6 +18,8 @@ DEFAULT_MISMATCH = "correlated"
 
 @dataclass(frozen=True)
 class SpectrumSpec:
+    """One spectrum of an epoch (``spectra`` entry): the file, how to read it, its terms."""
+
     file: Path
     air: bool | None = None
     resolution: float | None = None
@@ -34,6 +38,8 @@ class SpectrumSpec:
 
 @dataclass(frozen=True)
 class Epoch:
+    """One ``[[epoch]]`` table: its label, spectra (:class:`SpectrumSpec`) and photometry."""
+
     label: str
     spectra: tuple = ()
     photometry: Path | None = None
@@ -41,6 +47,8 @@ class Epoch:
 
 @dataclass(frozen=True)
 class ModelSpec:
+    """The ``[model]`` table: the model variant (law, veil, grains, likelihood, switches)."""
+
     extinction_law: str = "CCM89"
     veil: str = "none"
     grain_material: str = "silicate"
@@ -60,6 +68,8 @@ class ModelSpec:
 
 @dataclass(frozen=True)
 class SamplerSpec:
+    """The ``[sampler]`` table: walkers, step limits, stop-rule cadence, seed, evidence."""
+
     n_walkers: int = 48
     max_steps: int = 20000
     min_steps: int = 1000
@@ -72,6 +82,8 @@ class SamplerSpec:
 
 @dataclass(frozen=True)
 class Config:
+    """A whole run configuration: data, model, priors, sampler, hypotheses and grids."""
+
     path: Path
     name: str
     grid: str
@@ -95,8 +107,11 @@ class Config:
 
 
 def _override(model, over):
-    """``model`` with a hypothesis's settings; its ``switches`` ({key: bool}) turn the
-    declared components on or off, the model's other switches kept."""
+    """Return ``model`` with a hypothesis's settings.
+
+    Its ``switches`` ({key: bool}) turn the declared components on or off, the model's
+    other switches kept.
+    """
     over = dict(over)
     if "switches" in over:
         sw = over["switches"]

@@ -61,11 +61,12 @@ class VBand:
         self.bands = BandSet(["bessell-V"], ["vega"], wave)
 
     def __call__(self, p):
+        """Return V [mag] for the parameters ``p`` ({name: (n,)}), shape (n,)."""
         return self.bands.mags(observed_flux(self.grid, self.terms, p))[:, 0]
 
 
 def chunked(fn, flat, dtype=None, n_points=1):
-    """fn on blocks of draws (at most CHUNK, and ~BLOCK_VALUES draws x points)."""
+    """Apply ``fn`` on blocks of draws (at most CHUNK, and ~BLOCK_VALUES draws x points)."""
     step = max(1, min(CHUNK, BLOCK_VALUES // max(n_points, 1)))
     parts = [fn(flat[i:i + step]) for i in range(0, flat.shape[0], step)]
     if dtype is not None:  # each part converted as it comes (peak memory)
@@ -111,7 +112,7 @@ def derived_quantities(prep, flat, rng):
 
 
 def _positive_draws(prior, rng, n):
-    """n draws of a distance or parallax prior restricted to > 0.
+    """Draw ``n`` values of a distance or parallax prior restricted to > 0.
 
     A normal prior is drawn from its positive part directly, by the inverse CDF of the
     normal truncated at 0: bounded time whatever its mass below 0 (redrawing the

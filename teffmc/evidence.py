@@ -15,7 +15,7 @@ __all__ = ["log_evidence"]
 
 
 def log_evidence(log_post, space, *, seed, nlive=200, dlogz=0.1):
-    """ln Z and its error for a prepared posterior.
+    """Compute ln Z and its error for a prepared posterior by nested sampling.
 
     Parameters
     ----------

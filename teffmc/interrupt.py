@@ -1,5 +1,6 @@
-"""Ctrl-C (or SIGTERM, which the command line turns into the same KeyboardInterrupt)
-while a sampler library is calling our log-probability.
+"""Ctrl-C while a sampler library is calling our log-probability.
+
+The same holds for SIGTERM, which the command line turns into the same KeyboardInterrupt.
 
 emcee and dynesty call the user's function through wrappers that catch every exception,
 print the arguments and a traceback, and re-raise: an interrupt arriving there would end
@@ -35,6 +36,7 @@ class DeferredInterrupt:
         self.fn, self.pending = fn, False
 
     def __call__(self, *args):
+        """Return ``fn(*args)``, calling it again if a first interrupt cut it short."""
         while True:
             try:
                 return self.fn(*args)
@@ -44,8 +46,10 @@ class DeferredInterrupt:
                 self.pending = True
 
     def check(self, *args, **kwargs):
-        """Raise the held-back KeyboardInterrupt, if any (ignores its arguments, so it
-        can serve as a library's per-iteration callback)."""
+        """Raise the held-back KeyboardInterrupt, if any.
+
+        Ignores its arguments, so it can serve as a library's per-iteration callback.
+        """
         if self.pending or STOP["requested"]:
             self.pending = STOP["requested"] = False
             raise KeyboardInterrupt

@@ -184,6 +184,7 @@ class SpectrumChannel:
 
     @property
     def n_points(self):
+        """Return the number of data points: the spectrum's pixels."""
         return self.wave.size
 
     def predict(self, p):
@@ -197,8 +198,10 @@ class SpectrumChannel:
 
 
 def _native_span(grid, wave, resolution, fwhm_A):
-    """The grid's own pixels covering ``wave`` with the line-spread's reach, or None
-    (an analytic photosphere has no pixels of its own)."""
+    """Return the grid's own pixels covering ``wave`` with the line-spread's reach, or None.
+
+    None for an analytic photosphere, which has no pixels of its own.
+    """
     from .observe.lsf import FWHM_PER_SIGMA
 
     if not hasattr(grid, "log_flux"):
@@ -226,7 +229,7 @@ def _linear_matrix(x, y):
 
 
 def band_pixels(grid_wave, bands, source=None):
-    """The grid's own pixels spanning the given filters (one pixel margin each side).
+    """Return the grid's own pixels spanning the given filters (one pixel margin each side).
 
     Raises DataError when the grid does not cover a filter.
     """
@@ -276,6 +279,7 @@ class PhotometryChannel:
 
     @property
     def n_points(self):
+        """Return the number of data points: the photometric bands."""
         return len(self.bands)
 
     def predict(self, p):

@@ -16,7 +16,7 @@ from .errors import ConfigError
 from .priors import Prior
 
 __all__ = ["ParameterSpace", "model_parameters", "parameter_limits", "UNITS", "LABELS",
-           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS", "WORDS"]
+           "POSITIVE", "LIMITS", "DEFAULT_SHARED", "ALL_PARAMETERS", "WORDS", "CORNER_RANK"]
 
 _DECL = all_parameters()
 #: every parameter any model variant can have (declared by teffmc.components)
@@ -40,24 +40,21 @@ WORDS = {**{n: d.words or n for n, d in _DECL.items()}, "tio_scale": "TiO opacit
          "haze_scale": "line-haze scale"}
 LABELS = {**{n: d.label for n, d in _DECL.items()}, "tio_scale": r"$s_\mathrm{TiO}$",
           "haze_scale": r"$s_\mathrm{haze}$", "distance_pc": "d [pc]"}
+#: the corner plot's order of the parameters that declare one (lower first)
+CORNER_RANK = {n: d.corner_rank for n, d in _DECL.items() if d.corner_rank is not None}
 
 
 def parameter_limits(base, model):
-    """(low, high, why) the core accepts for one parameter of ``model``, or None.
+    """Return (low, high, why) the core accepts for one parameter of ``model``, or None.
 
-    The declared physical limits (:mod:`teffmc.components`), and where they depend on
-    the model: R_V within the extinction law's calibrated range, the grain radius within
-    the optics table's.
+    The limits its component declares (:mod:`teffmc.components`): the ``limits(model)``
+    of its :class:`~teffmc.components.Param` where they depend on the model variant
+    (R_V on the extinction law, the grain radius on the optics table), else its fixed
+    physical limits.
     """
-    if base == "r_v":
-        from .dust.extinction import law_ranges
-
-        lo, hi = law_ranges(model.extinction_law)[1]
-        return lo, hi, f"the R_V range of extinction law {model.extinction_law}"
-    if base == "grain_radius":
-        from .dust.mietable import RADIUS_RANGE
-
-        return (*RADIUS_RANGE, "the grain radii [micron] of the optics table")
+    d = _DECL.get(base)
+    if d is not None and d.limits is not None:
+        return d.limits(model)
     return LIMITS.get(base)
 
 
@@ -113,9 +110,12 @@ def _check_limits(base, prior, model, file, key):
 
 
 def _checked_priors(config, defaults, sibling, labels, file):
-    """The default priors overridden by the config's, each checked: a parameter of this
-    model (a sibling hypothesis's is skipped), a known epoch label, no per-epoch prior of
-    a shared parameter, > 0 where it must be, within the parameter's limits."""
+    """Return the default priors overridden by the config's, each checked.
+
+    A parameter of this model (a sibling hypothesis's is skipped), a known epoch label, no
+    per-epoch prior of a shared parameter, > 0 where it must be, within the parameter's
+    limits.
+    """
     multi = len(labels) > 1
     priors = dict(defaults)
     for key, prior in config.priors.items():
@@ -143,7 +143,7 @@ def _checked_priors(config, defaults, sibling, labels, file):
 
 
 def _check_grid_ranges(priors, grid_bounds, file):
-    """The priors of the grid's axes stay inside the grid."""
+    """Check that the priors of the grid's axes stay inside the grid."""
     for axis in ("teff", "logg", "mh"):
         for key in [k for k in priors if k.partition("@")[0] == axis]:
             lo, hi = priors[key].support
@@ -192,7 +192,7 @@ class ParameterSpace:
         self.base_names = list(defaults)
 
     def prior_of(self, base, label=None):
-        """The prior of a base parameter in epoch ``label`` (default: the first epoch)."""
+        """Return the prior of a base parameter in epoch ``label`` (default: the first epoch)."""
         slot = self._slots[(label or self.labels[0], base)]
         if slot.column is None:
             return Prior("fixed", value=slot.value)
@@ -215,6 +215,7 @@ class ParameterSpace:
 
     @property
     def ndim(self):
+        """Return the number of sampled parameters (the fixed ones aside)."""
         return len(self.names)
 
     def log_prior(self, x):
@@ -226,6 +227,7 @@ class ParameterSpace:
         return lp
 
     def sample_prior(self, rng, n):
+        """Draw ``n`` points from the priors with ``rng``, shape (n, ndim)."""
         return np.column_stack([pr.sample(rng, n) for pr in self.priors])
 
     def epoch_values(self, x, label):
@@ -248,4 +250,5 @@ class ParameterSpace:
         return out
 
     def priors_dict(self):
+        """Return ``{name: prior as a plain dict}`` of the sampled parameters (run.toml)."""
         return {n: p.to_dict() for n, p in zip(self.names, self.priors)}

@@ -37,7 +37,8 @@ def hole_cautions(space, grid):
     """Cautions for the parts of the prior that holes in the grid remove from the model.
 
     The sampler never enters a cell touching a missing model (interpolation there would
-    cross the hole), so the posterior is silently truncated there: say where."""
+    cross the hole), so the posterior is silently truncated there: say where.
+    """
     if not hasattr(grid, "excluded_regions"):
         return []
     box = {}
@@ -56,8 +57,10 @@ def hole_cautions(space, grid):
 
 
 def sample_posterior(prep, checkpoint, *, resume, quiet, log):
-    """Optimised start, then emcee until converged or out of steps (in the coordinates
-    of :class:`SamplerCoordinates`)."""
+    """Sample: optimised start, then emcee until converged or out of steps.
+
+    In the coordinates of :class:`SamplerCoordinates`.
+    """
     from .sample import find_start, run_sampler
     from .sampling_start import laplace_ball
 
@@ -127,15 +130,18 @@ def _predict(prep, x):
 
 
 def loo_draws(prep):
-    """How many draws get pointwise log-likelihoods: MAX_LOO_DRAWS, fewer for very long
-    spectra so that the n_draws x n_points array stays within MAX_POINTWISE_VALUES (at
-    least MIN_LOO_DRAWS; PSIS's Pareto k says when that is too few)."""
+    """Return how many draws get pointwise log-likelihoods.
+
+    MAX_LOO_DRAWS, fewer for very long spectra so that the n_draws x n_points array stays
+    within MAX_POINTWISE_VALUES (at least MIN_LOO_DRAWS; PSIS's Pareto k says when that is
+    too few).
+    """
     n_points = sum(ch.n_points for chans in prep.channels.values() for ch in chans)
     return int(min(MAX_LOO_DRAWS, max(MIN_LOO_DRAWS, MAX_POINTWISE_VALUES // n_points)))
 
 
 def finish_run(prep, result, folder, *, log, hypothesis=None):
-    """Derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
+    """Write derived quantities, posterior.nc, summaries, figures, run.toml, log.txt."""
     cfg = prep.config
     result = _thinned(result)
     n_draws, n_walkers, ndim = result.chain.shape
@@ -175,8 +181,10 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
 
 
 def _thinned(result):
-    """The result with every keep-th draw when the chain is longer than a summary needs
-    (at most MAX_STORED_DRAWS draws of all walkers together are stored)."""
+    """Return the result with every keep-th draw when the chain is longer than needed.
+
+    At most MAX_STORED_DRAWS draws of all walkers together are stored.
+    """
     n_draws, n_walkers, _ = result.chain.shape
     keep = max(1, math.ceil(n_draws * n_walkers / MAX_STORED_DRAWS))
     if keep == 1:
@@ -185,8 +193,10 @@ def _thinned(result):
 
 
 def _pointwise(prep, result):
-    """Pointwise log-likelihood (for PSIS-LOO) on at most :func:`loo_draws` draws, as
-    float32: it is n_draws x n_points, by far the largest part of posterior.nc."""
+    """Compute the pointwise log-likelihood (for PSIS-LOO) on at most :func:`loo_draws` draws.
+
+    As float32: it is n_draws x n_points, by far the largest part of posterior.nc.
+    """
     n_draws, n_walkers, ndim = result.chain.shape
     every = max(1, math.ceil(n_draws * n_walkers / loo_draws(prep)))
     loo_chain = result.chain[::every]
@@ -196,8 +206,11 @@ def _pointwise(prep, result):
 
 
 def _run_record(prep):
-    """What run.toml holds: the config as read, under a [teffmc] table of what the run
-    used (version, seed, grid and data checksums, priors, provenance)."""
+    """Return what run.toml holds: the config as read, and a [teffmc] table.
+
+    The [teffmc] table records what the run used (version, seed, grid and data checksums,
+    priors, provenance).
+    """
     cfg, space = prep.config, prep.space
     return {
         "teffmc": {"version": __version__, "seed": cfg.sampler.seed,
@@ -252,7 +265,7 @@ def _summary(prep, result, dt, derived_names, gof, hypothesis):
 
 
 def _evidence(prep, log):
-    """ln Z by nested sampling (``[sampler] evidence = true``)."""
+    """Compute ln Z by nested sampling (``[sampler] evidence = true``)."""
     from .evidence import log_evidence
 
     s = prep.config.sampler

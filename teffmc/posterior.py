@@ -22,7 +22,7 @@ __all__ = ["build", "save", "load", "load_run", "summarise", "draws", "loo"]
 
 
 def _to_chain_draw(a):
-    """(n_draws, n_walkers, ...) -> (n_walkers, n_draws, ...)"""
+    """Swap axes: (n_draws, n_walkers, ...) -> (n_walkers, n_draws, ...)."""
     return np.swapaxes(np.asarray(a), 0, 1)
 
 
@@ -73,20 +73,23 @@ def build(result, *, derived, pointwise, observed, predictive, attrs, constant=N
 
 
 def save(dt, path):
+    """Write the DataTree ``dt`` to ``path`` (netCDF-4 by h5netcdf: posterior.nc)."""
     dt.to_netcdf(str(path), engine="h5netcdf")
 
 
 def load(path):
+    """Read a DataTree written by :func:`save` (no completion check: see :func:`load_run`)."""
     import arviz as az
 
     return az.from_netcdf(str(path), engine="h5netcdf")
 
 
 def load_run(run_dir):
-    """A finished run folder's (DataTree from posterior.nc, dict from summary.json).
+    """Read a finished run folder: (DataTree from posterior.nc, dict from summary.json).
 
     Only a folder with a valid completion marker is read (teffmc.runfolder): anything
-    else raises DataError saying why (interrupted, being written, a file changed)."""
+    else raises DataError saying why (interrupted, being written, a file changed).
+    """
     from .runfolder import check_complete
 
     run_dir = Path(run_dir)

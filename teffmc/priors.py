@@ -49,6 +49,7 @@ class Prior:
 
     @property
     def fixed(self):
+        """Return whether the prior is a fixed value (the parameter is not sampled)."""
         return self.kind == "fixed"
 
     @property
@@ -77,7 +78,7 @@ class Prior:
         return np.where(inside, lp, -np.inf)
 
     def _ab(self):
-        """A truncnormal's bounds in standard deviations from the mean."""
+        """Return a truncnormal's bounds in standard deviations from the mean."""
         return (self.low - self.mean) / self.sd, (self.high - self.mean) / self.sd
 
     def ppf(self, u):
@@ -97,9 +98,11 @@ class Prior:
         return np.clip(self.mean + self.sd * z, self.low, self.high)
 
     def sample(self, rng, n):
+        """Draw ``n`` values with ``rng`` (through :meth:`ppf`), shape (n,)."""
         return self.ppf(rng.uniform(0.0, 1.0, n))
 
     def to_dict(self):
+        """Return the prior as run.toml writes it: ``{"fixed": v}`` or ``{"dist": kind, ...}``."""
         if self.fixed:
             return {"fixed": self.value}
         return {"dist": self.kind, **{k: getattr(self, k) for k in PRIOR_KINDS[self.kind]}}

@@ -1,7 +1,8 @@
-"""What a run used, recorded at fit time for the methods paragraph (``[teffmc.provenance]``
-of run.toml): data sets (files, pixels, ranges, masks, resolution, bands), grid (name,
-checksum, its own stated provenance and approximations), model terms and sampler
-settings with the stop rule actually applied.
+"""What a run used, recorded at fit time for the methods paragraph.
+
+This is ``[teffmc.provenance]`` of run.toml: data sets (files, pixels, ranges, masks,
+resolution, bands), grid (name, checksum, its own stated provenance and approximations),
+model terms and sampler settings with the stop rule actually applied.
 
 Only plain values (str, int, float, bool, lists, dicts) so that the TOML writer keeps them
 and ``teffmc report`` can rebuild the text from run.toml alone.
@@ -11,8 +12,15 @@ from pathlib import Path
 
 import numpy as np
 
-from .sampling_stop import (BURN_TAUS, RHAT_GROUPS, RHAT_MAX, RHAT_WALKER_MAX, TAU_FACTOR,
-                            TAU_RTOL, THIN_TAUS)
+from .sampling_stop import (
+    BURN_TAUS,
+    RHAT_GROUPS,
+    RHAT_MAX,
+    RHAT_WALKER_MAX,
+    TAU_FACTOR,
+    TAU_RTOL,
+    THIN_TAUS,
+)
 
 __all__ = ["run_provenance", "data_labels", "MOVES"]
 
@@ -21,8 +29,11 @@ MOVES = [("differential-evolution", 0.8, "terBraak2006"), ("stretch", 0.2, "Good
 
 
 def data_labels(cfg):
-    """``{"epoch.channel": "label: file name"}`` for the figures (data named as in the
-    config: the epoch label and the file, never the internal ``spectrum1``)."""
+    """Return ``{"epoch.channel": "label: file name"}`` for the figures.
+
+    Data are named as in the config: the epoch label and the file, never the internal
+    ``spectrum1``.
+    """
     out = {}
     for ep in cfg.epochs:
         for i, spec in enumerate(ep.spectra):
@@ -52,7 +63,7 @@ def _photometry_record(ep, ch):
 
 
 def run_provenance(prep):
-    """The ``[teffmc.provenance]`` record of a prepared run (see the module docstring)."""
+    """Return the ``[teffmc.provenance]`` record of a prepared run (see the module docstring)."""
     cfg = prep.config
     data = []
     for ep in cfg.epochs:

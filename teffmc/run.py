@@ -22,8 +22,17 @@ from .errors import ConfigError, DataError, TeffmcError
 from .likelihood import Posterior
 from .model import PhotometryChannel, SpectrumChannel
 from .parameters import ParameterSpace
-from .runfolder import (MARKER, check_out_folder, check_replace, discard, finish,
-                        is_complete, remove_leftovers, run_lock, write_marker)
+from .runfolder import (
+    MARKER,
+    check_out_folder,
+    check_replace,
+    discard,
+    finish,
+    is_complete,
+    remove_leftovers,
+    run_lock,
+    write_marker,
+)
 
 __all__ = ["fit", "FitResult", "prepare", "Prepared"]
 
@@ -33,8 +42,7 @@ RUN_FILES = ("posterior.nc", "summary.json", "summary.ecsv", "run.toml", "corner
 
 @dataclass
 class FitResult:
-    """What :func:`fit` returns: ``summary`` (dict as summary.json), ``posterior``
-    (ArviZ DataTree), ``out`` (the run folder)."""
+    """What :func:`fit` returns: ``summary`` (as summary.json), ``posterior``, folder ``out``."""
 
     summary: dict
     posterior: object
@@ -132,13 +140,14 @@ def prepare(config, grid=None, log=print, other_models=()):
 
 
 def resolution_notes(spec, grid, wave):
-    """What is assumed about a spectrum's line-spread function (for the log).
+    """Return what is assumed about a spectrum's line-spread function (for the log).
 
     Without ``resolution`` or ``fwhm_A`` none is applied: the model is compared at the
     grid's own sampling. A resolving power above the grid's -- taken as half its
     sampling ``lambda / d lambda`` over the data's range (two pixels per resolution
     element, the Nyquist rate; common practice, no source) -- cannot be matched: the
-    model stays broader than the data."""
+    model stays broader than the data.
+    """
     from .photosphere.blackbody import BlackbodyGrid
 
     if spec.resolution is None and spec.fwhm_A is None:
@@ -172,9 +181,10 @@ def require_free_parameters(space, cfg):
 
 
 def check_sampler_settings(space, cfg):
-    """The ensemble sampler needs at least two walkers per free parameter: refuse fewer
-    before anything is written (the sampler would refuse them only after the start
-    search)."""
+    """Refuse fewer than two walkers per free parameter, before anything is written.
+
+    The ensemble sampler would refuse them only after the start search.
+    """
     n = cfg.sampler.n_walkers
     if n < 2 * space.ndim:
         raise ConfigError(f"should be at least 2 x {space.ndim} free parameters = "
@@ -183,7 +193,7 @@ def check_sampler_settings(space, cfg):
 
 
 def default_out(config_path):
-    """The run folder of ``teffmc fit CONFIG`` without ``--out``: run-<stem> beside it."""
+    """Return the run folder of ``teffmc fit CONFIG`` without ``--out``: run-<stem> beside it."""
     config_path = Path(config_path)
     return config_path.parent / f"run-{config_path.stem}"
 
@@ -273,15 +283,17 @@ def _fit_locked(cfg, out, *, resume, quiet, overwrite):
 
 
 def grid_label(grid):
-    """A folder-safe short name of a grid (``builtin``, ``blackbody`` or the file stem)."""
+    """Return a folder-safe short name of a grid (``builtin``, ``blackbody`` or the file stem)."""
     return grid if grid in ("builtin", "blackbody") else Path(grid).stem
 
 
 def fit_grids(cfg, out, *, resume=False, quiet=False):
-    """Fit the same data with every grid of ``cfg.grids`` into ``OUT/grid-<name>/`` and
-    stack them (teffmc.stacking): ``OUT/stack.json`` and ``OUT/stack.ecsv`` hold the
-    weights, each grid's intervals and the combined ones. Returns the highest-weight run
-    with ``.comparison`` set to the stacking result (a dict as stack.json)."""
+    """Fit the same data with every grid of ``cfg.grids`` and stack them (teffmc.stacking).
+
+    Each grid's run goes to ``OUT/grid-<name>/``; ``OUT/stack.json`` and ``OUT/stack.ecsv``
+    hold the weights, each grid's intervals and the combined ones. Returns the
+    highest-weight run with ``.comparison`` set to the stacking result (as stack.json).
+    """
     from dataclasses import replace as _replace
 
     from .stacking_run import stack_runs
@@ -369,7 +381,7 @@ def _fmt(v, spec):
 
 
 def summary_to_text(summary):
-    """A few lines for the terminal."""
+    """Return a few lines for the terminal: the run's summary."""
     lines = []
     if not summary["converged"]:
         lines.append(f"CAUTION: not converged ({summary['reason']}); do not quote these numbers.")

@@ -1,5 +1,6 @@
-"""Run-folder safety: one writer at a time, a completion marker written last, and a
-replacement that no kill can leave half done.
+"""Run-folder safety: one writer, a completion marker written last, a safe replacement.
+
+No kill can leave a replacement half done.
 
 - **Lock.** A writer of the run folder ``OUT`` (``teffmc fit``, which also builds
   ``OUT.partial``; ``teffmc report``) holds an exclusive :func:`fcntl.flock` on the file
@@ -79,6 +80,7 @@ class RunLock:
         self.fd, self.made = None, []
 
     def acquire(self):
+        """Take the lock (refused with a ConfigError naming the holder); return self."""
         self.made = [p for p in self.path.parents if not p.exists()][::-1]  # outer first
         self.path.parent.mkdir(parents=True, exist_ok=True)
         while True:
@@ -111,6 +113,7 @@ class RunLock:
         return self
 
     def release(self):
+        """Remove the lock file while held, then drop the lock and the folders made for it."""
         if self.fd is None:
             return
         try:
@@ -136,7 +139,7 @@ class RunLock:
 
 
 def _holder(fd):
-    """The holder's details; it writes them just after it got the lock: wait a moment."""
+    """Return the holder's details; it writes them just after it got the lock: wait a moment."""
     for _ in range(50):
         try:
             os.lseek(fd, 0, os.SEEK_SET)
@@ -149,13 +152,13 @@ def _holder(fd):
 
 
 def run_lock(out):
-    """The lock of the run folder ``out`` (and ``out.partial``): ``out.lock`` beside it."""
+    """Return the lock of the run folder ``out`` (and ``out.partial``): ``out.lock`` beside it."""
     out = Path(out)
     return RunLock(out.with_name(out.name + ".lock"), out)
 
 
 def batch_lock(out):
-    """The lock of a batch folder: ``out/.batch-lock`` (no config stem can make it)."""
+    """Return the lock of a batch folder: ``out/.batch-lock`` (no config stem can make it)."""
     out = Path(out)
     return RunLock(out / ".batch-lock", out)
 
@@ -201,8 +204,11 @@ def _refuse(folder, why):
 
 
 def check_complete(folder):
-    """Return the run folder holding the result of ``folder`` (``folder`` itself, or its
-    best hypothesis / grid) if it is a finished run; else raise DataError saying why."""
+    """Return the run folder holding the result of ``folder`` if it is a finished run.
+
+    That is ``folder`` itself, or its best hypothesis / grid; else raise DataError saying
+    why.
+    """
     folder = Path(folder)
     if not folder.is_dir():
         _refuse(folder, "no such folder")
@@ -234,12 +240,12 @@ def check_complete(folder):
 
 
 def is_complete(folder):
-    """True when ``folder`` holds a finished run (see :func:`check_complete`)."""
+    """Return True when ``folder`` holds a finished run (see :func:`check_complete`)."""
     return finished_run(folder) is not None
 
 
 def finished_run(folder):
-    """The folder holding the finished result of ``folder``, or None."""
+    """Return the folder holding the finished result of ``folder``, or None."""
     try:
         return check_complete(folder)
     except DataError:
@@ -253,8 +259,11 @@ def _aside(out):
 
 
 def finish(partial, out):
-    """Finish the run built in ``partial`` and put it at ``out``: drop the sampler
-    checkpoint, write the completion marker (the run's last file), :func:`install`."""
+    """Finish the run built in ``partial`` and put it at ``out``.
+
+    Drop the sampler checkpoint, write the completion marker (the run's last file),
+    :func:`install`.
+    """
     partial = Path(partial)
     (partial / "chain.h5").unlink(missing_ok=True)
     write_marker(partial)
@@ -262,8 +271,10 @@ def finish(partial, out):
 
 
 def install(new, out):
-    """Move the finished run ``new`` to ``out``, replacing what is there: rename the old
-    run aside, rename the new one in, delete the old one."""
+    """Move the finished run ``new`` to ``out``, replacing what is there.
+
+    Rename the old run aside, rename the new one in, delete the old one.
+    """
     new, out = Path(new), Path(out)
     old = None
     if out.exists():
@@ -292,9 +303,11 @@ def remove_leftovers(out):
 
 
 def check_out_folder(out):
-    """Refuse an ``--out`` that cannot become a run folder, before anything is computed:
-    a path that is not a folder, one whose parent cannot be written (``OUT.partial`` is
-    made beside it), or a folder that is not a teffmc run (it would be deleted)."""
+    """Refuse an ``--out`` that cannot become a run folder, before anything is computed.
+
+    A path that is not a folder, one whose parent cannot be written (``OUT.partial`` is
+    made beside it), or a folder that is not a teffmc run (it would be deleted).
+    """
     run_files = (MARKER, "summary.json", "posterior.nc", "log.txt", "compare.json",
                  "stack.json")
     if out.exists() and not out.is_dir():
@@ -307,7 +320,7 @@ def check_out_folder(out):
 
 
 def _check_writable(folder, out):
-    """The nearest existing folder on the way to ``folder`` accepts a new folder.
+    """Check that the nearest existing folder on the way to ``folder`` accepts a new folder.
 
     Tried by making (and removing) a temporary folder: ``os.access`` says yes to root on
     any folder, and on file systems that refuse new entries anyway (/proc, /sys).
@@ -328,8 +341,7 @@ def _check_writable(folder, out):
 
 
 def check_replace(out, *, overwrite, resume):
-    """Refuse to replace a run in ``out`` unless ``overwrite`` (or ``resume``: continuing
-    it)."""
+    """Refuse to replace a run in ``out`` unless ``overwrite`` (or ``resume``: continuing it)."""
     if overwrite or resume or not out.is_dir() or not any(out.iterdir()):
         return
     if finished_run(out) is not None:

@@ -20,8 +20,17 @@ from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
 from teffmc.interrupt import DeferredInterrupt
 from teffmc.sampling_checkpoint import memory_backend, resume_state, write_checkpoint
 from teffmc.sampling_start import find_start, initial_ball
-from teffmc.sampling_stop import (RHAT_GROUPS, RHAT_MAX, RHAT_WALKER_MAX, TAU_FACTOR,
-                                   TAU_RTOL, autocorr_time, burn_thin, split_rhat, stop_rule)
+from teffmc.sampling_stop import (
+    RHAT_GROUPS,
+    RHAT_MAX,
+    RHAT_WALKER_MAX,
+    TAU_FACTOR,
+    TAU_RTOL,
+    autocorr_time,
+    burn_thin,
+    split_rhat,
+    stop_rule,
+)
 
 __all__ = [
     "SampleResult",
@@ -169,7 +178,7 @@ def _fresh_state(log_prob, x0, n_walkers, ndim, seed, ball_scale):
 
 
 def _rhat_check(chain, tau, n, names, rhat_max, text):
-    """The tau rule passed: confirm with R-hat on the draws the run would keep.
+    """Confirm a passed tau rule with R-hat on the draws the run would keep.
 
     ``rhat_max`` applies to the walkers pooled into RHAT_GROUPS chains, RHAT_WALKER_MAX
     to each walker as a chain (why both: :func:`teffmc.sampling_stop.split_rhat`).
@@ -204,7 +213,7 @@ def _initial_state(log_prob, x0, checkpoint, resume, names, n_walkers, seed, bal
 
 
 def _check(sampler, tau_at, n, check_every, names, min_steps, tau_factor, tau_rtol, rhat_max):
-    """The stop rule at step n: (tau, converged, text)."""
+    """Apply the stop rule at step n: return (tau, converged, text)."""
     prev = ((n - 1) // check_every) * check_every
     tau = tau_at(n)
     converged, text = stop_rule(n, tau, tau_at(prev), names=names, min_steps=min_steps,

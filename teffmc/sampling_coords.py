@@ -1,5 +1,7 @@
-"""The sampler's coordinates: log coordinates and the veil's (c, e) pair, with the
-Jacobian (DEVELOPERS.md, "Sampler coordinates")."""
+"""The sampler's coordinates: log coordinates and the veil's (c, e) pair, with the Jacobian.
+
+See DEVELOPERS.md, "Sampler coordinates".
+"""
 
 from dataclasses import replace
 
@@ -46,6 +48,7 @@ class SamplerCoordinates:
         self.pairs = np.array(self.pairs, int).reshape(-1, 2)
 
     def to_x(self, u):
+        """Map sampler coordinates ``u`` (..., ndim) to parameters ``x``; NaN where invalid."""
         x = np.array(u, float, copy=True)
         x[..., self.log] = np.exp(x[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
@@ -56,6 +59,7 @@ class SamplerCoordinates:
         return x
 
     def to_u(self, x):
+        """Map parameters ``x`` (..., ndim) to sampler coordinates ``u`` (inverse of to_x)."""
         u = np.array(x, float, copy=True)
         u[..., self.log] = np.log(u[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
@@ -63,6 +67,7 @@ class SamplerCoordinates:
         return u
 
     def jacobian(self, u):
+        """Return log |dx/du| at ``u`` (..., ndim), shape (...)."""
         u = np.asarray(u)
         t, c = self.pairs[:, 0], self.pairs[:, 1]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -71,6 +76,7 @@ class SamplerCoordinates:
         return np.sum(u[..., self.log], axis=-1) + pair
 
     def __call__(self, u):
+        """Return the log density in ``u``, log p(x(u)) + log |dx/du|, shape (n,)."""
         u = np.atleast_2d(np.asarray(u, float))
         x = self.to_x(u)
         ok = np.all(np.isfinite(x), axis=1)
@@ -81,9 +87,10 @@ class SamplerCoordinates:
         return out
 
     def sample_prior(self, rng, n):
+        """Draw ``n`` prior points with ``rng``, in ``u``, shape (n, ndim)."""
         return self.to_u(self.space.sample_prior(rng, n))
 
     def result_in_x(self, result):
-        """A :class:`~teffmc.sample.SampleResult` in u turned into one in x."""
+        """Turn a :class:`~teffmc.sample.SampleResult` in u into one in x."""
         return replace(result, chain=self.to_x(result.chain),
                        log_prob=result.log_prob - self.jacobian(result.chain))

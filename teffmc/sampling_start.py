@@ -31,8 +31,10 @@ def _finite_log_prob(log_prob, x):
 
 
 class _Scaled:
-    """-log_prob in coordinates z = (x - centre) / spread of the prior draws (so one
-    tolerance suits every parameter), with the optimiser's box in z."""
+    """-log_prob in coordinates z = (x - centre) / spread of the prior draws.
+
+    So one tolerance suits every parameter; with the optimiser's box in z.
+    """
 
     def __init__(self, log_prob, draws, lp, bounds):
         self.log_prob = log_prob
@@ -94,8 +96,9 @@ class _Scaled:
 
 
 def _spread_candidates(draws, lp, n_polish):
-    """Indices of the draws to polish: the best draw in each of ``n_polish`` slices of the
-    first parameter (Teff), so that the candidates spread over it.
+    """Pick the draws to polish: the best in each of ``n_polish`` slices of Teff.
+
+    Slices of the first parameter (Teff), so that the candidates spread over it.
 
     The best draws overall can all lie in one wrong basin: with the model-mismatch
     hyperparameters drawn from their priors, a draw's log-probability says little about
@@ -228,7 +231,7 @@ def initial_ball(x, rng, n_walkers, log_prob, scale, *, max_rounds=60):
 
 
 def _curvature_steps(log_prob, x, f0, h):
-    """Steps near one posterior sigma per parameter, from 1-D central differences.
+    """Return steps near one posterior sigma per parameter, from 1-D central differences.
 
     Three rounds: the step of a parameter with negative finite curvature becomes
     1/sqrt(-d2f/dx2) (kept within 1e-4..1e4 times the first step); others keep theirs.
@@ -289,8 +292,7 @@ def laplace_covariance(log_prob, x, h):
 
 
 def laplace_ball(log_prob, x, rng, n_walkers, h, *, max_rounds=20):
-    """Walkers drawn from the Laplace approximation at the mode x: a start in the
-    typical set.
+    """Draw walkers from the Laplace approximation at the mode x: a start in the typical set.
 
     A ball of 1e-3 of the parameters around the mode has to expand by the ensemble's
     own moves before the chain samples the posterior (tens of autocorrelation times on

@@ -97,8 +97,8 @@ def simulate_epoch(folder, stem, grid, model, truth, *, wave_range=(4000.0, 9500
     from astropy.table import Table
 
     from .model import SpectrumChannel, Terms, band_pixels, observed_flux
-    from .observe.spectrum import make_spectrum
     from .observe import BandSet
+    from .observe.spectrum import make_spectrum
     from .priors import Prior
 
     folder = Path(folder)

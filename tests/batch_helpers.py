@@ -12,11 +12,11 @@ from pathlib import Path
 import numpy as np
 import psutil
 
+from small_star import small_star_config
 from teffmc.config import ModelSpec
 from teffmc.photosphere import load_grid
 from teffmc.simulate import simulate_epoch
 
-from small_star import small_star_config
 
 def make_stars(d):
     """alpha (converges), beta (200 steps: not converged), gamma (no data: fails)."""

@@ -12,13 +12,12 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from bad_inputs import config_file, fit_cli, no_nan, nothing_left, one_line, phot_table
 from teffmc.config import load_config
 from teffmc.errors import ConfigError
 from teffmc.parameters import ParameterSpace
 from teffmc.photosphere import BlackbodyGrid
 from teffmc.priors import Prior
-
-from bad_inputs import config_file, fit_cli, no_nan, nothing_left, one_line, phot_table
 
 
 @pytest.fixture(scope="module")

@@ -10,9 +10,8 @@ import time
 
 import pytest
 
-from teffmc.cli import main
-
 from bad_inputs import TINY, config_file, fit_cli, no_nan, nothing_left, one_line, phot_table
+from teffmc.cli import main
 
 
 @pytest.fixture(scope="module")

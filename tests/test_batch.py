@@ -15,10 +15,9 @@ import pytest
 from astropy.table import Table
 
 import teffmc
+from batch_helpers import Cluster, batch_cmd, free_port, make_stars
 from teffmc import batch
 from teffmc.cli import main
-
-from batch_helpers import Cluster, batch_cmd, free_port, make_stars
 
 STARS = ("alpha", "beta", "gamma")
 STATUS = {"alpha": "ok", "beta": "not_converged", "gamma": "failed"}

@@ -13,12 +13,11 @@ import pytest
 from astropy.table import Table
 
 import teffmc
+from batch_helpers import Cluster, batch_cmd, kill_tree, make_stars
+from small_star import small_star_config
 from teffmc.config import ModelSpec
 from teffmc.photosphere import load_grid
 from teffmc.simulate import simulate_epoch
-
-from batch_helpers import Cluster, batch_cmd, kill_tree, make_stars
-from small_star import small_star_config
 
 
 @pytest.fixture(scope="module")

@@ -7,8 +7,15 @@ import sys
 import numpy as np
 import pytest
 
-from teffmc.dust import cache
-from teffmc.dust import MATERIALS, ConstantIndex, MieTable, efficiencies, grain_optics, mietable
+from teffmc.dust import (
+    MATERIALS,
+    ConstantIndex,
+    MieTable,
+    cache,
+    efficiencies,
+    grain_optics,
+    mietable,
+)
 from teffmc.errors import ConfigError, DataError
 
 

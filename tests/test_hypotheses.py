@@ -7,8 +7,8 @@ tests/test_hypotheses_noveil.py). Both hypotheses are fitted and compared by PSI
 
 import numpy as np
 import pytest
-from hypotheses_scenario import BASE, row, scenario
 
+from hypotheses_scenario import BASE, row, scenario
 from teffmc.budget import dimming_budget
 from teffmc.config import ModelSpec
 from teffmc.model import Terms, band_pixels, observed_flux

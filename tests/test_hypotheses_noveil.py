@@ -2,6 +2,7 @@
 not win clearly. A file of its own so that pytest-xdist fits it beside tests/test_hypotheses.py."""
 
 import pytest
+
 from hypotheses_scenario import row, scenario
 
 

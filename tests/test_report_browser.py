@@ -18,12 +18,11 @@ from selenium import webdriver
 from selenium.webdriver.chrome.service import Service
 from selenium.webdriver.common.by import By
 
+from small_star import small_star_config
 from teffmc.batch import fit_many
 from teffmc.config import ModelSpec
 from teffmc.photosphere import load_grid
 from teffmc.simulate import simulate_epoch
-
-from small_star import small_star_config
 
 CHROMIUM, DRIVER = "/usr/bin/chromium", "/usr/bin/chromedriver"
 
@@ -195,7 +194,8 @@ def test_survey_figures_are_journal_ready(survey):
     (tests/test_report_output.py): no overlapping text, units, column width."""
     import matplotlib.pyplot as plt
 
-    from teffmc.report import style, survey as survey_mod
+    from teffmc.report import style
+    from teffmc.report import survey as survey_mod
     from test_report_output import _axis_labels_ok
 
     rows, names = survey_mod.survey_rows(survey)

@@ -9,9 +9,9 @@ ESS = (n_steps - burn) * n_walkers / tau (common practice, no source).
 import numpy as np
 import pytest
 from scipy import stats
-from test_sample_problems import correlated_gaussian_5d
 
 from teffmc.sample import find_start, run_sampler
+from test_sample_problems import correlated_gaussian_5d
 
 
 @pytest.fixture(scope="module")

@@ -11,11 +11,11 @@ from pathlib import Path
 import emcee
 import numpy as np
 import pytest
-from test_sample_problems import gaussian_2d
 
 from teffmc.errors import ConfigError, ConvergenceWarning
 from teffmc.sample import run_sampler
 from teffmc.sampling_checkpoint import read_checkpoint
+from test_sample_problems import gaussian_2d
 
 # 2-D Gaussian, 16 walkers: converges after 1700 steps with seed 0 (measured)
 RUN = {"n_walkers": 16, "check_every": 100, "min_steps": 0, "progress": False}

@@ -5,10 +5,10 @@ import sys
 
 import numpy as np
 import pytest
-from test_sample_problems import gaussian_2d
 
 from teffmc.errors import ConfigError, ConvergenceWarning, TeffmcError
 from teffmc.sample import SampleResult, run_sampler
+from test_sample_problems import gaussian_2d
 
 FAST = {"n_walkers": 16, "check_every": 100, "min_steps": 0, "progress": False, "seed": 3}
 

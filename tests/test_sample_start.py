@@ -2,10 +2,10 @@
 
 import numpy as np
 import pytest
-from test_sample_problems import correlated_gaussian_5d, gaussian_2d
 
 from teffmc.errors import ConfigError, TeffmcError
 from teffmc.sample import find_start, initial_ball
+from test_sample_problems import correlated_gaussian_5d, gaussian_2d
 
 
 @pytest.fixture

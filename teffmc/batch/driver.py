@@ -1,5 +1,7 @@
-"""``fit_many``: the batch in the main process -- plan, skip finished stars, run the
-engine, record each star in the tables and the log."""
+"""``fit_many``: the batch in the main process.
+
+Plan, skip finished stars, run the engine, record each star in the tables and the log.
+"""
 
 import sys
 import time
@@ -9,8 +11,14 @@ from ..errors import ClusterError, ConfigError
 from ..runfolder import batch_lock
 from .engine import Engine
 from .plan import finished_summary, plan_stars
-from .tables import TABLE, plain_row, previous_wall_times, row_from_summary, \
-    survey_table, write_tables
+from .tables import (
+    TABLE,
+    plain_row,
+    previous_wall_times,
+    row_from_summary,
+    survey_table,
+    write_tables,
+)
 
 __all__ = ["fit_many", "STATUSES", "LOG", "ENGINE"]
 
@@ -117,8 +125,10 @@ def fit_many(configs, out, workers=None, redo=False, quiet=True, scheduler=None)
 
 
 def _first_rows(plan, out, redo):
-    """The table's rows before any fit (finished stars copied, the others pending) and
-    the indices of the stars to fit."""
+    """Return the table's rows before any fit and the indices of the stars to fit.
+
+    Finished stars are copied from their runs, the others are pending.
+    """
     old_wall = previous_wall_times(out / TABLE)
     rows, todo = [], []
     for i, (star, cfg) in enumerate(plan):

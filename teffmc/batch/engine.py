@@ -1,6 +1,8 @@
-"""The Dask side of a batch: an embedded ``LocalCluster`` or a client of a running
-scheduler, the same task submission and result handling for both, and the engine
-report (batch-engine.json)."""
+"""The Dask side of a batch: an embedded ``LocalCluster`` or a running scheduler.
+
+The same task submission and result handling for both, and the engine report
+(batch-engine.json).
+"""
 
 import json
 import os
@@ -22,8 +24,10 @@ TASK = fit_star  # what the workers run per star (a test replaces it to kill a w
 
 
 def _dashboard(client):
-    """The address of the Dask dashboard if it serves its pages (they need bokeh), else
-    None."""
+    """Return the address of the Dask dashboard if it serves its pages, else None.
+
+    The pages need bokeh.
+    """
     import urllib.request
 
     try:
@@ -38,9 +42,11 @@ def _dashboard(client):
 
 
 class Engine:
-    """The Dask side of a batch: an embedded ``LocalCluster`` of ``workers`` processes,
-    or a client of the running scheduler at ``address``; the same task, submission and
-    result handling for both."""
+    """The Dask side of a batch: a ``LocalCluster`` or a client of a running scheduler.
+
+    An embedded ``LocalCluster`` of ``workers`` processes, or a client of the running
+    scheduler at ``address``; the same task, submission and result handling for both.
+    """
 
     def __init__(self, workers, address):
         self.workers, self.address = workers, address
@@ -52,6 +58,7 @@ class Engine:
 
     # -- start and stop
     def start(self):
+        """Start the embedded cluster or connect to the scheduler (ClusterError if not)."""
         import logging
 
         import dask
@@ -86,6 +93,7 @@ class Engine:
         self.dashboard = _dashboard(self.client)
 
     def describe(self):
+        """Return one line on the workers: count, and for a scheduler its threads now."""
         if self.address is None:
             return f"{self.workers} worker(s) (Dask LocalCluster)"
         info = self.client.scheduler_info()
@@ -95,6 +103,7 @@ class Engine:
                 + ("" if n else ": stars wait for its workers"))
 
     def close(self):
+        """Close the client and an embedded cluster; restore Dask's log levels."""
         import logging
 
         if self.client is not None:
@@ -115,8 +124,10 @@ class Engine:
 
     # -- the stars
     def run(self, plan, todo, out, redo, on_result):
-        """Fit the stars ``plan[i]`` for ``i`` in ``todo`` into ``out/<star>``;
-        ``on_result(i, res)`` as each one ends, in the order they end."""
+        """Fit the stars ``plan[i]`` for ``i`` in ``todo`` into ``out/<star>``.
+
+        ``on_result(i, res)`` is called as each one ends, in the order they end.
+        """
         from distributed import as_completed
 
         batch_id = uuid.uuid4().hex[:12]
@@ -167,8 +178,10 @@ class Engine:
                     "reason": one_line(exc)}
 
     def _stop(self, futures):
-        """Cancel the stars not started and ask the workers to stop their fits (the
-        checkpoints are kept); an embedded cluster is then closed, its workers ended."""
+        """Cancel the stars not started and ask the workers to stop their fits.
+
+        The checkpoints are kept; an embedded cluster is then closed, its workers ended.
+        """
         try:
             if futures:
                 self.client.cancel(futures, force=True)
@@ -178,6 +191,7 @@ class Engine:
 
     # -- the engine report
     def cache_line(self):
+        """Return one line of the worker caches' hits/uses, summed over the workers."""
         total = {}
         for caches in self._last_caches().values():
             for name, (hits, uses) in caches.items():
@@ -195,8 +209,11 @@ class Engine:
         return last
 
     def report(self):
-        """Per worker: stars, time fitting, idle time between its stars (scheduling and
-        transfer: the engine's overhead), peak memory, caches; per star: the same."""
+        """Return the engine report (batch-engine.json) as a dict.
+
+        Per worker: stars, time fitting, idle time between its stars (scheduling and
+        transfer: the engine's overhead), peak memory, caches; per star: the same.
+        """
         workers = {}
         for star, r in sorted(self.records.items(), key=lambda kv: kv[1]["start"]):
             w = workers.setdefault(r["worker"], {"stars": [], "busy_s": 0.0, "gaps_s": [],
@@ -224,6 +241,7 @@ class Engine:
                         "(Dask's scheduling and data transfer)."}
 
     def write_report(self, path):
+        """Write :meth:`report` as JSON to ``path`` atomically; an OSError is ignored."""
         try:
             text = json.dumps(self.report(), indent=1) + "\n"
             write_atomic(path, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))
@@ -232,8 +250,11 @@ class Engine:
 
 
 def _quiet_dask():
-    """Only CRITICAL messages from Dask's loggers in this process (Dask sets levels on
-    some of its loggers, e.g. distributed.client); returns their levels before."""
+    """Let only CRITICAL messages through Dask's loggers in this process.
+
+    Dask sets levels on some of its loggers (e.g. distributed.client). Returns their
+    levels before.
+    """
     import logging
 
     names = ["distributed"] + [n for n in logging.root.manager.loggerDict

@@ -52,8 +52,10 @@ def plan_stars(configs, out):
 
 
 def finished_summary(folder):
-    """``summary.json`` of the finished run in ``folder`` (the best-ranked hypothesis for a
-    config with hypotheses), or None when the folder holds no finished run."""
+    """Return ``summary.json`` of the finished run in ``folder``, or None if there is none.
+
+    For a config with hypotheses, the best-ranked hypothesis's.
+    """
     run = finished_run(folder)  # decided by the completion marker, written last
     return None if run is None else run / "summary.json"
 

@@ -1,5 +1,8 @@
-"""The survey table: one row per star copied from its run's summary.json, written as
-batch.ecsv and batch.parquet, each replaced atomically (temporary file + ``os.replace``)."""
+"""The survey table: one row per star, copied from its run's summary.json.
+
+Written as batch.ecsv and batch.parquet, each replaced atomically (temporary file +
+``os.replace``).
+"""
 
 import json
 import os
@@ -13,6 +16,11 @@ STATS = ("median", "p16", "p84")   # the names summary.json uses
 TABLE, PARQUET = "batch.ecsv", "batch.parquet"
 
 def row_from_summary(star, config, path, out, wall):
+    """Return the table row of a star whose run wrote ``path`` (its summary.json).
+
+    Status "ok" or "not_converged"; ``run`` is the run folder relative to ``out``;
+    ``wall`` the fit's wall time [s].
+    """
     s = json.loads(Path(path).read_text(encoding="utf-8"))
     converged = bool(s["converged"])
     reason = " ".join(str(s.get("reason", "")).split())
@@ -30,13 +38,14 @@ def row_from_summary(star, config, path, out, wall):
 
 
 def plain_row(star, config, status, reason="", wall=None):
+    """Return the table row of a star without a finished run (pending, failed, ...)."""
     return {"star": star, "config": str(config), "status": status, "reason": reason,
             "caution": "", "wall_time_s": wall, "n_steps": None, "run": "", "hypothesis": "",
             "stats": {}, "cautions": []}
 
 
 def survey_table(rows):
-    """astropy Table, one row per star; parameter columns are the union over stars."""
+    """Return an astropy Table, one row per star; parameter columns are the union over stars."""
     import numpy as np
     from astropy.table import MaskedColumn, Table
 
@@ -89,8 +98,11 @@ def write_atomic(path, write):
 
 
 def _parquet(table, path):
-    """The survey table as Parquet: masked values are nulls; units, the notes and the
-    cautions are in the file's key-value metadata (``teffmc`` JSON)."""
+    """Write the survey table as Parquet.
+
+    Masked values are nulls; units, the notes and the cautions are in the file's
+    key-value metadata (``teffmc`` JSON).
+    """
     import numpy as np
     import pyarrow as pa
     import pyarrow.parquet as pq

@@ -25,8 +25,11 @@ _SETUP_LOCK = threading.Lock()
 
 
 def _worker_setup():
-    """Once per worker process: one BLAS thread per fitting thread, and the batch records
-    non-convergence as a status (the warning would only add noise)."""
+    """Set up a worker process, once.
+
+    One BLAS thread per fitting thread, and the batch records non-convergence as a status
+    (the warning would only add noise).
+    """
     with _SETUP_LOCK:
         if _SETUP["limits"] is not None:
             return
@@ -48,15 +51,18 @@ def _worker_setup():
 
 
 def _exit_with_parent(parent):
-    """A worker whose batch was killed (SIGKILL) would fit the rest of its star for
-    nobody (its nanny lives in the batch process)."""
+    """End this worker process when its parent ``parent`` (the batch) is gone.
+
+    A worker whose batch was killed (SIGKILL) would fit the rest of its star for nobody
+    (its nanny lives in the batch process).
+    """
     while os.getppid() == parent:
         time.sleep(1.0)
     os._exit(1)
 
 
 def _cache_counters():
-    """This process's cache counters: {cache: [hits, uses]}."""
+    """Return the process's cache counters: {cache: [hits, uses]}."""
     from ..dust import cache as dust_cache
     from ..dust.extinction import TABLE_STATS
     from ..observe import filters
@@ -78,6 +84,7 @@ def _peak_rss_mb():
 
 
 def one_line(exc):
+    """Return an exception as one line: its message, marked internal unless a TeffmcError."""
     msg = " ".join(str(exc).split())
     if isinstance(exc, TeffmcError):
         return msg
@@ -129,8 +136,11 @@ def fit_star(config, out, redo):
 
 
 def stop_fits():
-    """Run on every worker when the batch is interrupted: the fits stop at their next
-    sampler step and keep their checkpoints (teffmc.interrupt.STOP)."""
+    """Stop the fits of this worker (run on every worker when the batch is interrupted).
+
+    The fits stop at their next sampler step and keep their checkpoints
+    (teffmc.interrupt.STOP).
+    """
     from ..interrupt import STOP
 
     STOP["requested"] = True

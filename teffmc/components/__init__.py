@@ -3,15 +3,21 @@
 A component is one module listed in :data:`COMPONENTS`. It declares
 
 ``PARAMETERS``
-    its parameters (:class:`Param`: name, unit, label, physical limits, default prior,
-    whether epochs share it by default, its dimming-budget group);
+    its parameters (:class:`Param`: name, unit, label, physical limits -- fixed, or a
+    function of the model variant --, default prior, whether epochs share it by
+    default, its dimming-budget group);
 ``active(model)``
     whether a model variant has it;
 ``SWITCH`` (optional)
     the name of a boolean key of ``[model]`` and ``[[hypothesis]]`` that turns it on: the
     config reads every declared switch into ``ModelSpec.switches`` and ``active`` tests
-    ``SWITCH in model.switches``; ``METHODS`` (optional) is then the sentence the methods
-    text (:mod:`teffmc.report.methods`) says when it is on;
+    ``SWITCH in model.switches``;
+``METHODS``, ``METHODS_OFF`` (optional)
+    what the methods text (:mod:`teffmc.report.methods`) says about it when a run's
+    model has it, and when it has not: a jinja2 fragment rendered with the text's own
+    context and filters (``model``: the recorded ModelSpec as a dict, ``versions``,
+    symbols such as ``tau`` and ``mu``, filters ``e``, ``g``, ``cite``), so a plain
+    sentence with no LaTeX or Markdown special characters is a valid one;
 ``AFTER_NUISANCES`` (optional, True)
     its parameters come after the grid's nuisance parameters in the sampled vector (the
     layout of runs made before the components were declared);
@@ -66,7 +72,7 @@ def all_parameters():
 
 
 def declared(name):
-    """The :class:`Param` called ``name`` (KeyError if none)."""
+    """Return the :class:`Param` called ``name`` (KeyError if none)."""
     return all_parameters()[name]
 
 

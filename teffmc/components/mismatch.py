@@ -37,4 +37,5 @@ PARAMETERS = (
 
 
 def active(model):
+    """Return whether any spectrum of the model variant has a model-mismatch term."""
     return bool(model.mismatch_terms)

@@ -13,4 +13,5 @@ PARAMETERS = (
 
 
 def active(model):
+    """Return True: every model variant has the noise parameters."""
     return True

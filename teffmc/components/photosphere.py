@@ -19,16 +19,17 @@ def _axis(axis):
 
 PARAMETERS = (
     Param("teff", "K", r"$T_\mathrm{eff}$ [K]", _axis("teff"), group="temperature",
-          words="effective temperature"),
+          words="effective temperature", corner_rank=10),
     Param("logg", "dex", r"$\log g$", _axis("logg"), shared=True, group="temperature",
-          words="surface gravity"),
+          words="surface gravity", corner_rank=80),
     Param("mh", "dex", "[M/H]", _axis("mh"), shared=True, group="temperature",
-          words="metallicity"),
+          words="metallicity", corner_rank=90),
     Param("theta", "mas", r"$\theta$ [mas]", Prior("loguniform", low=1e-3, high=1e3),
           low=0.0, open_low=True, why="an angular diameter is positive", group="radius",
-          words="angular diameter"),
+          words="angular diameter", corner_rank=30),
 )
 
 
 def active(model):
+    """Return True: every model variant has a photosphere."""
     return True

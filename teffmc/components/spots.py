@@ -26,11 +26,11 @@ __all__ = ["PARAMETERS", "SWITCH", "METHODS", "active", "region"]
 PARAMETERS = (
     Param("spot_cover", "", r"$f_\mathrm{spot}$", Prior("uniform", low=0.0, high=0.5),
           low=0.0, high=1.0, why="a covering fraction lies in [0, 1]", group="temperature",
-          words="hot-spot fraction"),
+          words="hot-spot fraction", corner_rank=120),
     Param("spot_dteff", "K", r"$\Delta T_\mathrm{spot}$",
           Prior("uniform", low=0.0, high=1000.0), low=0.0,
           why="the spots are hotter than the photosphere", group="temperature",
-          words="hot-spot temperature excess"),
+          words="hot-spot temperature excess", corner_rank=130),
 )
 #: the ``[model]`` key that turns the spots on
 SWITCH = "spots"
@@ -40,6 +40,7 @@ METHODS = ("Hot surface spots are included: a fraction of the disc at a higher e
 
 
 def active(model):
+    """Return whether the model variant's config turns the hot spots on."""
     return SWITCH in model.switches
 
 

@@ -44,7 +44,7 @@ def _remember(path, arrays):
 
 
 def cache_dir():
-    """The cache directory (not created here).
+    """Return the cache directory (not created here).
 
     Returns
     -------

@@ -59,7 +59,7 @@ def _law_class(law):
 
 
 def law_ranges(law):
-    """Valid wavelength range [Angstrom] and R_V range of an extinction law.
+    """Return the valid wavelength range [Angstrom] and R_V range of an extinction law.
 
     Parameters
     ----------

@@ -62,8 +62,11 @@ def _trapezoid_widths(t):
 
 
 def _curve_of_x(m, x_lo, x_hi, spread_dex, cone_deg=None):
-    """ln x grid and (Q_ext, Q_sca, Q_sca g, Q_sca P_cone) on it, size-averaged when
-    spread_dex > 0. The last entry is None without ``cone_deg``."""
+    """Tabulate the efficiencies on a grid of ln x (x the size parameter).
+
+    Returns the ln x grid and (Q_ext, Q_sca, Q_sca g, Q_sca P_cone) on it, size-averaged
+    when spread_dex > 0. The last entry is None without ``cone_deg``.
+    """
     spread = spread_dex > 0
     sig = spread_dex * np.log(10.0)
     xf = _fine_x(x_lo * np.exp(-5 * sig), x_hi * np.exp(5 * sig), H_LN[spread], DX[spread])
@@ -95,7 +98,10 @@ def _m_nodes(mat, wave):
 
 
 def log_radius(ln_grid, radius, key="grain_radius"):
-    """ln of a batch of radii [micron], checked against the table's range (ConfigError)."""
+    """Return ln of a batch of radii [micron], checked against the table's range.
+
+    Raises ConfigError (naming ``key``) for a radius outside the table.
+    """
     r = np.atleast_1d(np.asarray(radius, dtype=np.float64))
     lo, hi = np.exp(ln_grid[0]), np.exp(ln_grid[-1])
     bad = ~((r >= lo * (1 - 1e-12)) & (r <= hi * (1 + 1e-12)))

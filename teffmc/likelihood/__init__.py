@@ -117,6 +117,11 @@ class Posterior:
         return terms if pointwise else terms.sum(axis=1)
 
     def __call__(self, x):
+        """Return the log posterior density (up to a constant) of walkers ``x`` (n, n_dim).
+
+        Shape (n,); -inf where the prior is zero, a walker's surface leaves the grid, or
+        the likelihood is not finite.
+        """
         x = np.atleast_2d(np.asarray(x, float))
         lp = self.space.log_prior(x)
         good = np.isfinite(lp)

@@ -48,7 +48,7 @@ _SQRT3 = np.sqrt(3.0)
 
 
 def velocity_axis(wave):
-    """c ln(lambda) [km/s] of ascending wavelengths: the kernel's stationary axis."""
+    """Return c ln(lambda) [km/s] of ascending wavelengths: the kernel's stationary axis."""
     return C_KMS * np.log(np.asarray(wave, float))
 
 
@@ -65,9 +65,9 @@ def _as_walkers(a, nw):
 # error_model="numpy": no zero-division checks, which keep loops from vectorising
 @numba.njit(cache=True, fastmath=True, error_model="numpy")
 def _gram(E, step, t, mT, d, e2, rp, jit2, rw, amp, rho, A):  # pragma: no cover
-    """Whitened Gram matrix of [u, A] under diag(D) + amp^2 K_rho, per walker, with the
-    relative residual u = (d - m) / m and variance D formed inside the loop.
+    """Accumulate the whitened Gram matrix of [u, A] under diag(D) + amp^2 K_rho per walker.
 
+    The relative residual u = (d - m) / m and variance D are formed inside the loop.
     mT (n, nw) model flux, d (n,) data; the relative variance is
     D = jit2_w e2_i / m^2 + rp_i + rw_w (measurement, per-pixel and per-walker parts).
     E (n_steps, nw) holds exp(-lam dt) for the distinct pixel steps dt (``step[i]`` is

@@ -214,12 +214,13 @@ def _assemble(raw, units, chosen, medium, path):
 
 
 def _read_fits(path, columns):
-    """A FITS spectrum; a damaged file is a DataError.
+    """Read a FITS spectrum; a damaged file is a DataError.
 
     astropy.io.fits reads headers and data lazily, and on a damaged file (truncated data,
     unparsable cards, broken column definitions -- found by tests/test_fuzz.py) raises
     VerifyError, ValueError, TypeError, AttributeError, ... from wherever the data are
-    first touched; all of them mean "not a readable FITS file"."""
+    first touched; all of them mean "not a readable FITS file".
+    """
     import warnings
 
     from astropy.utils.exceptions import AstropyWarning
@@ -252,12 +253,13 @@ def _read_fits_hdus(path, columns):
 
 
 def read_ecsv_table(path):
-    """An ECSV file as an astropy Table; any failure of the parser is a DataError.
+    """Read an ECSV file as an astropy Table; any failure of the parser is a DataError.
 
     The parser is astropy's (YAML header, then rows): on a damaged file it raises many
     kinds of exception (InconsistentTableError, ValueError, YAML errors, KeyError,
     TypeError, UnicodeDecodeError, ... found by tests/test_fuzz.py), all of which mean
-    "this file is not a valid ECSV table"."""
+    "this file is not a valid ECSV table".
+    """
     from astropy.table import Table
 
     try:

@@ -26,8 +26,8 @@ is integrated on the same model grid, so a flat-f_nu model gives exactly 0.
 
 import numpy as np
 
-from teffmc.errors import DataError
 from teffmc.constants import C_A_PER_S
+from teffmc.errors import DataError
 from teffmc.observe.filters import get_filter, vega_spectrum
 
 __all__ = ["AB_FNU0", "C_A_PER_S", "VEGA_MAG", "BandSet", "synth_mag"]

@@ -85,7 +85,7 @@ def _prior_var(prior_sigma, k):
 
 
 def _design(design, n_pix):
-    """The design as (n_pix, K); a (K, n_pix) array is accepted and transposed."""
+    """Return the design as (n_pix, K); a (K, n_pix) array is accepted and transposed."""
     A = np.asarray(design, dtype=float)
     if A.ndim == 2 and A.shape[0] != n_pix and A.shape[1] == n_pix:
         A = A.T
@@ -121,9 +121,9 @@ def _normal_equations(data, var, model, design, prior_sigma):
 
 @numba.njit(cache=True, fastmath=True, error_model="numpy")
 def _normal_sums(d, var, m, A):  # pragma: no cover - compiled
-    """Per walker: G = B^T S^-1 B (upper triangle), b = B^T S^-1 r, chi2 = r^T S^-1 r and
-    log det S, in one pass over the pixels (no (walkers x pixels) temporaries).
+    """Accumulate per walker G = B^T S^-1 B, b = B^T S^-1 r, chi2 = r^T S^-1 r, log det S.
 
+    One pass over the pixels (no (walkers x pixels) temporaries); G is the upper triangle.
     var and m (nw, n), A (n, K). log det S is summed as logs of products of 8 variances
     relative to the walker's first (each ratio far from over/underflow).
     """
@@ -162,9 +162,11 @@ def _normal_sums(d, var, m, A):  # pragma: no cover - compiled
 
 
 def marginal_loglike_fast(data, var, model, design, prior_sigma):
-    """:func:`marginal_loglike` for var and model of shape (n_walkers, n_pix) and a
-    (K, n_pix) or (n_pix, K) design, by one compiled pass (same value to rounding,
-    tests/test_observe_calibration.py)."""
+    """Compute :func:`marginal_loglike` for many walkers by one compiled pass.
+
+    ``var`` and ``model`` have shape (n_walkers, n_pix), the design (K, n_pix) or
+    (n_pix, K); the value is the same to rounding (tests/test_observe_calibration.py).
+    """
     m = np.ascontiguousarray(model, dtype=float)
     v = np.ascontiguousarray(np.broadcast_to(np.asarray(var, dtype=float), m.shape))
     A = np.ascontiguousarray(_design(design, m.shape[-1]))

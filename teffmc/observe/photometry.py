@@ -191,7 +191,7 @@ def _read_columns(path):
 
 
 def _check_columns(values, path):
-    """The columns band, err, system and exactly one of mag and flux are there."""
+    """Check that the columns band, err, system and exactly one of mag and flux are there."""
     for need in ("band", "err", "system"):
         if need not in values:
             raise DataError(
@@ -206,8 +206,10 @@ def _check_columns(values, path):
 
 
 def _band_names(column, path):
-    """Band names; a relative ``.ecsv`` filter file is taken from the table's folder.
-    Every band is looked up once here, so an unknown one is refused with the file."""
+    """Return the band names; a relative ``.ecsv`` filter file is taken from the table's folder.
+
+    Every band is looked up once here, so an unknown one is refused with the file.
+    """
     folder = Path(path).parent
     bands = [
         b if not (b.lower().endswith(".ecsv") and not Path(b).is_absolute()) else str(folder / b)

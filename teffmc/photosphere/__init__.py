@@ -20,9 +20,11 @@ def builtin_grid_path():
 
 @lru_cache(maxsize=4)
 def _read(path, mtime_ns):
-    """One grid object per (file, modification time) in a process: a process fitting
-    many stars (a ``teffmc batch`` worker) reads a grid file once, and again only when
-    the file was replaced."""
+    """Read a grid file, cached per (file, modification time) in a process.
+
+    A process fitting many stars (a ``teffmc batch`` worker) reads a grid file once, and
+    again only when the file was replaced.
+    """
     return Grid.read(path)
 
 

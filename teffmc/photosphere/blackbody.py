@@ -54,15 +54,18 @@ class BlackbodyGrid:
 
     @property
     def checksum(self):
+        """Return ``"blackbody"``: the curve is a formula, there is no file to hash."""
         return "blackbody"
 
     def describe(self):
+        """Return a few lines of text describing this photosphere (``teffmc grid info``)."""
         return (f"name: blackbody (Planck surface flux, exact at every Teff)\n"
                 f"teff: {self.BOUNDS['teff'][0]:g} .. {self.BOUNDS['teff'][1]:g} K\n"
                 f"wave: {self.wave.size} pixels, {self.wave[0]:.1f} .. {self.wave[-1]:.1f} "
                 "Angstrom (vacuum)\nlogg, mh: ignored")
 
     def check_inside(self, teff, logg, mh):
+        """Return a boolean array: which points lie inside :attr:`BOUNDS`."""
         teff, logg, mh = np.broadcast_arrays(*(np.asarray(v, float) for v in (teff, logg, mh)))
         ok = np.ones(teff.shape, bool)
         for ax, v in zip(("teff", "logg", "mh"), (teff, logg, mh)):
@@ -73,6 +76,11 @@ class BlackbodyGrid:
     nuisance_names = ()
 
     def interpolate(self, teff, logg, mh, nuisance=None):
+        """Return the surface flux [erg s^-1 cm^-2 Angstrom^-1] at a batch, (n, n_wave).
+
+        Exact Planck curves; ``logg``, ``mh`` and ``nuisance`` only have to be in bounds.
+        Raises OffGridError for the first point outside :attr:`BOUNDS`.
+        """
         teff, logg, mh = np.broadcast_arrays(
             *(np.atleast_1d(np.asarray(v, float)) for v in (teff, logg, mh)))
         inside = self.check_inside(teff, logg, mh)
@@ -82,12 +90,17 @@ class BlackbodyGrid:
         return planck_surface_flux(self.wave, teff)
 
     def interpolate_log(self, teff, logg, mh, nuisance=None):
+        """Return log10 of :meth:`interpolate`, shape (n, n_wave)."""
         return np.log10(self.interpolate(teff, logg, mh))
 
     def spectrum(self, teff, logg=0.0, mh=0.0):
+        """Return one spectrum: ``(wave [Angstrom, vacuum], surface F_lambda)``."""
         return self.wave.copy(), self.interpolate(teff, logg, mh)[0]
 
     def on_pixels(self, wave, *, resolution=None, fwhm_A=None):
-        """The same photosphere evaluated on ``wave``; a Planck curve is smooth, so the
-        line-spread function changes it by far less than any data error and is skipped."""
+        """Return the same photosphere evaluated on ``wave`` [Angstrom, vacuum].
+
+        A Planck curve is smooth, so the line-spread function changes it by far less than
+        any data error and is skipped.
+        """
         return BlackbodyGrid(wave)

@@ -140,14 +140,16 @@ class Grid:
 
     @property
     def checksum(self):
+        """Return the SHA-256 hex digest of the axes and the flux (the grid's identity)."""
         return grid_checksum(self.teff, self.logg, self.mh, self.wave, self.log_flux)
 
     def node_params(self, index):
+        """Return (teff [K], logg, mh) of the node at index ``(i, j, k)`` of the axes."""
         i, j, k = index
         return (float(self.teff[i]), float(self.logg[j]), float(self.mh[k]))
 
     def describe(self):
-        """A few lines of text describing the grid (used by ``teffmc grid info``)."""
+        """Return a few lines of text describing the grid (used by ``teffmc grid info``)."""
         lines = [f"name: {self.name}"]
         for ax, unit in zip(AXES, ("K", "dex", "dex")):
             v = getattr(self, ax)
@@ -252,8 +254,11 @@ class Grid:
         return np.asarray(weights @ stack.reshape(-1, self.wave.size))
 
     def _stack(self):
-        """(n_models, 1 + 2 n_nuisance, n_wave) float64, made once: log10 F, then D1 and
-        D2 / 2 of each nuisance axis (teffmc.photosphere.nuisance.responses)."""
+        """Stack log10 F, then D1 and D2 / 2 of each nuisance axis, made once.
+
+        Shape (n_models, 1 + 2 n_nuisance, n_wave), float64
+        (teffmc.photosphere.nuisance.responses).
+        """
         from .nuisance import responses
 
         stack = self.__dict__.get("_term_stack")
@@ -280,7 +285,7 @@ class Grid:
 
     # ------------------------------------------------------------------ resampling
     def on_pixels(self, wave, *, resolution=None, fwhm_A=None):
-        """A new grid on the pixels ``wave`` [Angstrom, vacuum].
+        """Return a new grid on the pixels ``wave`` [Angstrom, vacuum].
 
         The flux is convolved with a Gaussian line-spread function of resolving power
         ``resolution`` (or FWHM ``fwhm_A``) and resampled, once for all nodes: this is
@@ -323,8 +328,10 @@ class Grid:
 
     @classmethod
     def read(cls, path):
-        """Read a grid file written by :meth:`write`, verifying its checksum
-        (:func:`teffmc.photosphere.gridfile.read_grid`)."""
+        """Read a grid file written by :meth:`write`, verifying its checksum.
+
+        See :func:`teffmc.photosphere.gridfile.read_grid`.
+        """
         return read_grid(path, cls)
 
 

@@ -1,7 +1,7 @@
-"""The grid file: one HDF5 file (readable as netCDF-4) with the axes, the float32 log
-flux, units, provenance, the nuisance axes and SHA-256 checksums verified on load.
+"""The grid file: one HDF5 file (readable as netCDF-4), checksums verified on load.
 
-The layout is described in :mod:`teffmc.photosphere.grid`.
+It holds the axes, the float32 log flux, units, provenance, the nuisance axes and
+SHA-256 checksums. The layout is described in :mod:`teffmc.photosphere.grid`.
 """
 
 import hashlib
@@ -27,8 +27,10 @@ def grid_checksum(teff, logg, mh, wave, log_flux):
 
 
 def write_grid(grid, path):
-    """Write ``grid`` (a :class:`~teffmc.photosphere.grid.Grid`) to ``path`` (HDF5,
-    gzip-compressed float32 flux)."""
+    """Write ``grid`` (a :class:`~teffmc.photosphere.grid.Grid`) to ``path``.
+
+    HDF5, with the flux as gzip-compressed float32.
+    """
     import h5py
 
     lf = np.asarray(grid.log_flux, dtype="<f4")
@@ -62,8 +64,10 @@ def write_grid(grid, path):
                                       chunks=(1, 1, 1, lf.shape[-1]))
 
 def read_grid(path, cls):
-    """Read a grid file written by :func:`write_grid`, verifying its checksum;
-    ``cls(**arrays, provenance=..., name=..., nuisance=...)`` makes the grid."""
+    """Read a grid file written by :func:`write_grid`, verifying its checksum.
+
+    ``cls(**arrays, provenance=..., name=..., nuisance=...)`` makes the grid.
+    """
     import h5py
 
     try:
@@ -89,7 +93,7 @@ def read_grid(path, cls):
 
 
 def _read_nuisance(f):
-    """The nuisance axes stored in an open grid file, and their checksum."""
+    """Return the nuisance axes stored in an open grid file, and their checksum."""
     from .nuisance import NuisanceAxis
 
     if "nuisance" not in f:

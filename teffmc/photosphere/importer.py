@@ -305,7 +305,7 @@ def import_grid(folder, table, *, air=False, wave_unit=None, flux_unit=None, wav
 
 
 def _read_params(table):
-    """The parameter table's columns and its finite, distinct (teff, logg, mh) rows."""
+    """Return the parameter table's columns and its finite, distinct (teff, logg, mh) rows."""
     cols = read_param_table(table)
     params = {ax: to_float(cols[ax], file=table, column=ax) for ax in AXES}
     for ax in AXES:
@@ -345,8 +345,11 @@ def _read_models(folder, table, cols, air, wave_unit, flux_unit):
 
 
 def _output_axis(wave, waves, hows, folder, cols):
-    """The grid's wavelength axis (module docstring), a note on it, and whether it is
-    every model's own axis (no resampling)."""
+    """Choose the grid's wavelength axis (see the module docstring).
+
+    Returns the axis, a note on it, and whether it is every model's own axis (no
+    resampling).
+    """
     if wave is not None:
         out = np.asarray(wave, dtype=float)
         if out.ndim != 1 or out.size < 1 or not np.all(np.isfinite(out)) or \

@@ -65,6 +65,7 @@ class NuisanceAxis:
 
     @property
     def parameter(self):
+        """Return the name of the sampled scale parameter, ``"<name>_scale"``."""
         return f"{self.name}_scale"
 
 

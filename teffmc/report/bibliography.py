@@ -207,8 +207,10 @@ def short_cite(key):
 
 
 def bibtex(keys, versions=None):
-    """The BibTeX file text for ``keys`` (in that order, each once); software entries get
-    the run's ``versions`` of their package."""
+    """Return the BibTeX file text for ``keys`` (in that order, each once).
+
+    Software entries get the run's ``versions`` of their package.
+    """
     versions = versions or {}
     out = ["% references.bib written by teffmc for the methods paragraph (methods.tex).",
            "% Entries were written from memory, not copied from the publishers' records:",

@@ -1,5 +1,7 @@
-"""The run's figures, journal-ready (see :mod:`teffmc.report.style`): corner, fit with
-residuals, and the old single-file entry points ``corner_figure``/``fit_figure``.
+"""The run's figures, journal-ready (see :mod:`teffmc.report.style`): corner and fit.
+
+The fit comes with residuals; ``corner_figure``/``fit_figure`` are the old single-file
+entry points.
 
 Builders (``*_fig``) return a matplotlib Figure; :func:`teffmc.report.style.save` writes
 it as PDF and PNG. The other figures (hypotheses, budget, Delta Teff, diagnostics) are in
@@ -7,11 +9,12 @@ it as PDF and PNG. The other figures (hypotheses, budget, Delta Teff, diagnostic
 """
 
 import json
+import math
 from pathlib import Path
 
 import numpy as np
 
-from ..parameters import LABELS, UNITS
+from ..parameters import CORNER_RANK, LABELS, UNITS
 from . import style
 from .style import CAUTION, COLUMN, PAGE, plain_text, unit_label
 
@@ -27,8 +30,6 @@ DERIVED_LABELS = {"f_bol": (r"$f_\mathrm{bol}$", "W m^-2"), "radius": (r"$R$", "
                   "luminosity": (r"$L$", "L_sun"), "v_mag": (r"$V$", "mag"),
                   "delta_teff": (r"$\Delta T_\mathrm{eff}$", "K"),
                   "delta_v": (r"$\Delta V$", "mag"), "distance_pc": ("$d$", "pc")}
-PRIORITY = ("teff", "a_v", "theta", "veil_tau", "grain_radius", "veil_cover", "r_v", "logg",
-            "mh", "patch_cover", "patch_dteff")
 
 
 def gapped(x, *ys):
@@ -50,8 +51,10 @@ def _cuts(x):
 
 
 def masked_gaps(x):
-    """``[(lo, hi)]``: wavelength ranges between used pixels wider than 5 median steps
-    (the masked ranges, as the fitted pixels show them)."""
+    """Return ``[(lo, hi)]``, the wavelength ranges between used pixels > 5 median steps.
+
+    These are the masked ranges, as the fitted pixels show them.
+    """
     x = np.asarray(x, float)
     if x.size < 3:
         return []
@@ -70,8 +73,10 @@ def param_label(name):
 
 
 def _head(fig, title, converged):
-    """The figure's title (the star's name, wrapped to the figure's width) and, for a run
-    that did not converge, the caution in red."""
+    """Write the figure's title and, for a run that did not converge, the caution in red.
+
+    The title is the star's name, wrapped to the figure's width.
+    """
     import textwrap
 
     # about 10 characters of 9 pt text per inch, with room to spare
@@ -83,17 +88,24 @@ def _head(fig, title, converged):
 
 
 def corner_order(names):
-    """Up to CORNER_MAX names, physical parameters first (PRIORITY order)."""
+    """Return up to CORNER_MAX names, in the order the components declare.
+
+    By each parameter's ``corner_rank`` (:data:`teffmc.parameters.CORNER_RANK`: the
+    physical parameters; the epochs of one, ``name@label``, side by side), then the
+    others in the order of ``names``.
+    """
     def rank(n):
-        base = n.partition("@")[0]
-        return PRIORITY.index(base) if base in PRIORITY else len(PRIORITY)
+        return CORNER_RANK.get(n.partition("@")[0], math.inf)
     return sorted(names, key=lambda n: (rank(n), names.index(n)))[:CORNER_MAX]
 
 
 @style.styled
 def corner_fig(samples, names, *, truths=None, converged=True, title=None):
-    """Corner plot: marginal histograms and 39 % / 86 % (1 and 2 sigma of a 2-D normal)
-    highest-density contours of the pairs, for up to :data:`CORNER_MAX` parameters."""
+    """Draw the corner plot of up to :data:`CORNER_MAX` parameters.
+
+    Marginal histograms and 39 % / 86 % (1 and 2 sigma of a 2-D normal) highest-density
+    contours of the pairs.
+    """
     from matplotlib.ticker import MaxNLocator, NullLocator
 
     samples = np.asarray(samples, float)
@@ -206,8 +218,10 @@ def _spectrum(pan, ax, rax, models):
 
 
 def _flux_scale(data):
-    """A power of ten near the data's median, written into the axis label (no offset
-    text above the axis)."""
+    """Return a power of ten near the data's median, for the axis label.
+
+    It is written into the label, so there is no offset text above the axis.
+    """
     med = float(np.nanmedian(np.abs(np.asarray(data, float))))
     return 10.0 ** np.floor(np.log10(med)) if med > 0 and np.isfinite(med) else 1.0
 
@@ -249,9 +263,11 @@ def _band_names(ax, um, d, bands):
 
 @style.styled
 def fit_fig(panels, *, converged=True, title=None, models=None):
-    """Data, model and normalised residuals: one pair of axes per data set, epochs in
-    rows. Masked ranges are shaded. ``models`` (hypotheses overlaid) maps each panel's
-    ``key``/index to ``[(label, draws)]``; by default the panel's own ``draws``."""
+    """Draw data, model and normalised residuals: one pair of axes per data set.
+
+    Epochs in rows; masked ranges are shaded. ``models`` (hypotheses overlaid) maps each
+    panel's ``key``/index to ``[(label, draws)]``; by default the panel's own ``draws``.
+    """
     from matplotlib.ticker import MaxNLocator
 
     rows = _layout(panels)
@@ -302,5 +318,5 @@ def corner_figure(samples, names, path, *, truths=None, converged=True, title=No
 
 
 def fit_figure(panels, path, *, converged=True, title=None):
-    """Data, model and residuals saved to ``path`` (see :func:`fit_fig`)."""
+    """Save data, model and residuals to ``path`` (see :func:`fit_fig`)."""
     _save_one(fit_fig(panels, converged=converged, title=title), path, converged)

@@ -1,6 +1,9 @@
-"""Figures beyond corner and fit: hypotheses overlaid, the dimming budget, epoch
-differences (Delta Teff) and the convergence diagnostics (rank plots, tau against chain
-length, Pareto k). Each builder returns a Figure (see :mod:`teffmc.report.style`)."""
+"""Figures beyond corner and fit.
+
+Hypotheses overlaid, the dimming budget, epoch differences (Delta Teff) and the
+convergence diagnostics (rank plots, tau against chain length, Pareto k). Each builder
+returns a Figure (see :mod:`teffmc.report.style`).
+"""
 
 import json
 import re
@@ -46,9 +49,12 @@ def _interval_row(ax, y, x, color, marker):
 
 @style.styled
 def budget_fig(runs, *, title=None, converged=True):
-    """The dimming budget: Delta V between epochs and its temperature / veil / radius
-    parts (teffmc.budget's telescoping order), median with 68 % (thick) and 95 % (thin)
-    intervals, one colour per hypothesis. ``runs``: [(name, dt)]."""
+    """Draw the dimming budget: Delta V between epochs and its parts.
+
+    The temperature / veil / radius parts in teffmc.budget's telescoping order, median
+    with 68 % (thick) and 95 % (thin) intervals, one colour per hypothesis.
+    ``runs``: [(name, dt)].
+    """
     epochs = later_epochs(runs[0][1])
     n = len(BUDGET_PARTS)
     fig = style.figure(COLUMN, 0.9 + 0.75 * n * max(len(epochs), 1))
@@ -108,8 +114,10 @@ _TAU_LINE = re.compile(r"\] (\d+) steps, ([\d.]+) x max tau = \d+ \(tau ([\d.]+)
 
 
 def tau_history(log_text):
-    """``(steps, max tau, tau_factor)`` from the stop-rule lines of a run's log.txt
-    (the estimates the stop rule saw at each check)."""
+    """Return ``(steps, max tau, tau_factor)`` from the stop-rule lines of a run's log.txt.
+
+    These are the estimates the stop rule saw at each check.
+    """
     steps, taus, factor = [], [], None
     for m in _TAU_LINE.finditer(log_text or ""):
         steps.append(int(m.group(1)))
@@ -119,8 +127,11 @@ def tau_history(log_text):
 
 
 def _rank_panel(ax, chains, name, n_groups=4):
-    """Rank plot (Vehtari et al. 2021, from memory): ranks of all draws pooled, a
-    histogram per group of walkers; flat histograms mean the groups agree."""
+    """Draw a rank plot (Vehtari et al. 2021, from memory) on ``ax``.
+
+    Ranks of all draws pooled, a histogram per group of walkers; flat histograms mean the
+    groups agree.
+    """
     n_w = chains.shape[0]
     ranks = np.argsort(np.argsort(chains.ravel(), kind="stable"), kind="stable")
     ranks = ranks.reshape(chains.shape)
@@ -137,9 +148,12 @@ def _rank_panel(ax, chains, name, n_groups=4):
 
 @style.styled
 def diagnostics_fig(dt, summary, log_text, *, title=None):
-    """Convergence at a glance: rank plots of up to 8 parameters (walkers in 4 groups),
-    the stop rule's tau estimates against chain length with the required length
-    ``N / tau_factor``, and the Pareto k of every data point's PSIS-LOO term."""
+    """Draw convergence at a glance.
+
+    Rank plots of up to 8 parameters (walkers in 4 groups), the stop rule's tau estimates
+    against chain length with the required length ``N / tau_factor``, and the Pareto k of
+    every data point's PSIS-LOO term.
+    """
     names = corner_order(json.loads(dt.attrs["sampled_names"]))
     names = [n for n in names if np.ptp(dt["posterior"].ds[n].values) > 0]
     ncol = 4

@@ -1,6 +1,9 @@
-"""report.html (one run, or a comparison) and survey.html (a batch): single self-contained
-pages -- figures embedded as base64 PNG, styles and the table-sorting script inline, no
-network -- rendered by jinja2 from ``templates/*.html.j2`` (autoescaped)."""
+"""report.html (one run, or a comparison) and survey.html (a batch).
+
+Single self-contained pages -- figures embedded as base64 PNG, styles and the
+table-sorting script inline, no network -- rendered by jinja2 from
+``templates/*.html.j2`` (autoescaped).
+"""
 
 import base64
 import html as html_mod
@@ -15,6 +18,7 @@ __all__ = ["report_html", "comparison_html", "survey_page", "rounded_html", "env
 
 
 def env():
+    """Return the jinja2 environment of the report templates (autoescaped, strict)."""
     import jinja2
 
     from .methods import TEMPLATES
@@ -34,12 +38,12 @@ def _num(x, spec=".4g"):
 
 
 def _exact(x):
-    """The full-precision number for a ``data-value`` attribute (what summary.json holds)."""
+    """Return the full-precision number for a ``data-value`` attribute (as in summary.json)."""
     return "" if x is None else repr(float(x))
 
 
 def rounded_html(median, p16, p84):
-    """The value with asymmetric errors, rounded by the paper tables' rule, as HTML."""
+    """Return the value with asymmetric errors, rounded by the paper tables' rule, as HTML."""
     if None in (median, p16, p84):
         return "n/a"
     text = round_value(median, p84 - median, median - p16).text
@@ -75,8 +79,11 @@ def _b64(images):
 
 def report_html(*, summary, record, log_text, images, captions, comparison=None,
                 methods_md=None):
-    """report.html of one run: verdict and cautions first (with the goodness of fit),
-    the parameter table, the figures, the diagnostics, the methods, the provenance."""
+    """Render report.html of one run.
+
+    Verdict and cautions first (with the goodness of fit), the parameter table, the
+    figures, the diagnostics, the methods, the provenance.
+    """
     t = record.get("teffmc", {})
     gof = summary.get("goodness_of_fit") or {}
     bad_fit = [k for k, g in gof.items() if g.get("chi2_nu") is not None
@@ -93,8 +100,10 @@ def report_html(*, summary, record, log_text, images, captions, comparison=None,
 
 
 def comparison_html(*, comparison, images, captions, links):
-    """report.html of a folder of hypotheses: the comparison, its figures and links to
-    each hypothesis's own report."""
+    """Render report.html of a folder of hypotheses.
+
+    The comparison, its figures and links to each hypothesis's own report.
+    """
     first = comparison["runs"][0][1]
     return env().get_template("report.html.j2").render(
         title=first.attrs.get("title", "comparison"), summary=None, rows=[], gof={},

@@ -1,4 +1,4 @@
-"""LaTeX and CSV tables of a finished run's summary, with values rounded for print.
+r"""LaTeX and CSV tables of a finished run's summary, with values rounded for print.
 
 Rounding rule (common practice, no source; a simpler form of the Particle Data Group's
 rule, which keeps two figures up to a leading 354, from memory):
@@ -9,14 +9,14 @@ rule, which keeps two figures up to a leading 354, from memory):
    when rounding carries into the next decade (0.96 -> 1.0, 0.0299 -> 0.030).
 2. The value is rounded to the decimal place of the less precise error (the coarser last
    digit); each error keeps its own figures (2.345 +0.5 -0.13 -> 2.3^{+0.5}_{-0.13}).
-3. When the rounded + and - errors are equal, ``value \\pm error`` is printed.
+3. When the rounded + and - errors are equal, ``value \pm error`` is printed.
 4. Ties round half away from zero (0.125 -> 0.13). Inputs are first read to 10 significant
    digits, so differences of floats (1.06 - 1.03 = 0.030000000000000027) round as written.
 5. Without a usable error (zero, negative, NaN or missing) the value is printed to 4
-   significant figures and no error; a missing value prints ``\\cdots``.
+   significant figures and no error; a missing value prints ``\cdots``.
 6. A value outside 1e-3 <= |value| < 1e5 (after rounding; the largest error when the value
    rounds to 0) is printed with its power of ten factored out:
-   ``(1.31^{+0.27}_{-0.24}) \\times 10^{5}``.
+   ``(1.31^{+0.27}_{-0.24}) \times 10^{5}``.
 """
 
 import csv
@@ -141,7 +141,7 @@ def _compose(rv, rp, rm):
 
 
 def latex_escape(text):
-    """``text`` with LaTeX's special characters (``_ % & # $ { } ~ ^ \\``) escaped."""
+    r"""Return ``text`` with LaTeX's special characters (``_ % & # $ { } ~ ^ \``) escaped."""
     return "".join(_ESCAPES.get(c, c) for c in str(text))
 
 
@@ -192,7 +192,7 @@ def _grid_text(summary):
 
 
 def table_note(summary):
-    """The note under a table: intervals, grid and checksum, convergence verdict."""
+    """Return the note under a table: intervals, grid and checksum, convergence verdict."""
     parts = [INTERVAL_NOTE]
     if _has_stat(summary):
         parts.append(STAT_NOTE)
@@ -203,7 +203,7 @@ def table_note(summary):
 
 
 def latex_table(summary, *, style="tabular", caption=None, label=None, star=None):
-    """A LaTeX table of a run's summary (the dict written to summary.json).
+    r"""Return a LaTeX table of a run's summary (the dict written to summary.json).
 
     Parameters
     ----------
@@ -214,7 +214,7 @@ def latex_table(summary, *, style="tabular", caption=None, label=None, star=None
         LaTeX text, used as given. Default: "Posterior summary" with the escaped ``star``
         name and hypothesis.
     label : str, optional
-        ``\\label`` key (default ``tab:teffmc``).
+        ``\label`` key (default ``tab:teffmc``).
     star : str, optional
         Plain-text star name for the default caption (escaped).
     """
@@ -299,9 +299,12 @@ def _f(x, spec):
 
 
 def compare_latex(rows, *, caption="Comparison of the hypotheses", label="tab:teffmc-compare"):
-    """A LaTeX table of compare.json's rows: elpd_LOO with its standard error, the
-    difference to the best run with the standard error of the difference, ln Z when
-    computed, the count of Pareto k > 0.7 and the convergence verdict."""
+    """Return a LaTeX table of compare.json's rows.
+
+    elpd_LOO with its standard error, the difference to the best run with the standard
+    error of the difference, ln Z when computed, the count of Pareto k > 0.7 and the
+    convergence verdict.
+    """
     head = (r"Hypothesis & $\mathrm{elpd_{LOO}}$ & $\Delta\mathrm{elpd_{LOO}}$ & "
             r"$\ln Z$ & $N(\hat{k}>0.7)$ & Converged \\")
     body = []
@@ -342,9 +345,12 @@ def _survey_value(v):
 
 
 def survey_latex(rows, names, *, caption="Survey results", label="tab:teffmc-survey"):
-    """A LaTeX table with one row per star: status and the rounded value of each
-    parameter in ``names`` (``rows`` as :func:`teffmc.report.survey.survey_rows` gives,
-    ``vals`` holding a dict with median, p16, p84 per name)."""
+    """Return a LaTeX table with one row per star.
+
+    Status and the rounded value of each parameter in ``names`` (``rows`` as
+    :func:`teffmc.report.survey.survey_rows` gives, ``vals`` holding a dict with median,
+    p16, p84 per name).
+    """
     heads = ["Star", "Status"] + [_label_unit(n)[0] + (
         f" ({LATEX_UNITS.get(_label_unit(n)[1], latex_escape(_label_unit(n)[1]))})"
         if _label_unit(n)[1] else "") for n in names]

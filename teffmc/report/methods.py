@@ -4,13 +4,17 @@ Built from the run's own files only -- run.toml (the resolved config and
 ``[teffmc.provenance]``: data, grid, model, sampler, stop rule), summary.json (steps,
 burn-in, thinning, achieved R-hat and ESS, goodness of fit) and, for a comparison, the
 rows of compare.json -- through one jinja2 template (``templates/methods.j2``) rendered
-twice, with LaTeX or Markdown filters, so the two texts say the same.
+twice, with LaTeX or Markdown filters, so the two texts say the same. What the model
+paragraph says about each model component is the component's own sentence
+(``METHODS`` / ``METHODS_OFF``, :mod:`teffmc.components`), rendered in the same context.
 """
 
 import math
+from dataclasses import fields
 from pathlib import Path, PurePath
 
 from ..components import COMPONENTS
+from ..config_spec import ModelSpec
 from ..parameters import UNITS, WORDS
 from .bibliography import LAW_KEYS, bibtex, short_cite
 from .latex import DERIVED, latex_escape
@@ -23,14 +27,16 @@ NAMES = WORDS   # declared by teffmc.components (and the grid's nuisances)
 
 
 def _g(x):
-    """A number as given in the config: 3000.0 -> 3000, 0.05 -> 0.05."""
+    """Format a number as given in the config: 3000.0 -> 3000, 0.05 -> 0.05."""
     x = float(x)
     return f"{x:.0f}" if x == round(x) and abs(x) < 1e15 else f"{x:.6g}"
 
 
 def prior_text(prior, unit=""):
-    """Plain words for one prior of run.toml (``{"dist": "uniform", "low": ..}`` or
-    ``{"fixed": v}``)."""
+    """Return plain words for one prior of run.toml.
+
+    ``prior`` is ``{"dist": "uniform", "low": ..}`` or ``{"fixed": v}``.
+    """
     u = f" {PLAIN_UNITS.get(unit, unit)}" if PLAIN_UNITS.get(unit, unit) else ""
     if "fixed" in prior:
         return f"fixed at {_g(prior['fixed'])}{u}"
@@ -45,9 +51,11 @@ def prior_text(prior, unit=""):
 
 
 def achieved(summary):
-    """Worst R-hat and smallest bulk and tail ESS over the sampled parameters:
+    """Return the worst R-hat and smallest bulk and tail ESS over the sampled parameters.
+
     ``{"r_hat": (value, name), "ess_bulk": ..., "ess_tail": ...}`` (None when no
-    parameter has them)."""
+    parameter has them).
+    """
     out = {}
     for key, pick in (("r_hat", max), ("ess_bulk", min), ("ess_tail", min)):
         vals = [(s[key], n) for n, s in (summary.get("parameters") or {}).items()
@@ -106,16 +114,34 @@ def methods_context(record, summary, *, comparison=None, star=None):
         "comparison": comparison or [], "versions": versions,
         "derived": derived,
         "photometry": any(d.get("kind") == "photometry" for d in data),
-        "switched": switched_sentences(model),
+        "components": component_sentences(model),
     }
 
 
-def switched_sentences(model):
-    """The ``METHODS`` sentences of the components a run's model switched on
-    (``switches`` of its recorded ModelSpec), registry order."""
-    on = set(model.get("switches") or ())
-    return [c.METHODS for c in COMPONENTS
-            if getattr(c, "SWITCH", None) in on and getattr(c, "METHODS", "")]
+def recorded_model(model):
+    """Return the run's recorded model (run.toml's dict) as a ModelSpec.
+
+    Keys the ModelSpec does not know are left out, and the ones the record lacks (a run
+    of an earlier version) take their defaults.
+    """
+    known = {f.name for f in fields(ModelSpec)}
+    return ModelSpec(**{k: tuple(v) if isinstance(v, list) else v
+                        for k, v in model.items() if k in known})
+
+
+def component_sentences(model):
+    """Return each component's sentence for a run's recorded model, registry order.
+
+    ``METHODS`` of the components the model has (``active``), ``METHODS_OFF`` of those
+    it has not; template fragments rendered with the methods text (:func:`render_methods`).
+    """
+    spec = recorded_model(model)
+    out = []
+    for c in COMPONENTS:
+        text = getattr(c, "METHODS" if c.active(spec) else "METHODS_OFF", "")
+        if text:
+            out.append(text)
+    return out
 
 
 def _md_escape(s):
@@ -133,8 +159,10 @@ def _cite_tex(keys):
 
 
 def render_methods(ctx, fmt):
-    """``(text, cited keys)``: the methods text in ``fmt`` ("tex" or "md") from
-    :func:`methods_context` and the BibTeX keys it cites, in order."""
+    """Render the methods text in ``fmt`` ("tex" or "md") from :func:`methods_context`.
+
+    Returns ``(text, cited keys)``: the BibTeX keys it cites, in order.
+    """
     import jinja2
 
     cited = []
@@ -167,6 +195,9 @@ def render_methods(ctx, fmt):
                        teff=r"$T_\mathrm{eff}$" if tex else "Teff",
                        av=r"$A_V$" if tex else "A_V", rv=r"$R_V$" if tex else "R_V",
                        matern=r"Mat\'ern" if tex else "Matérn")
+    # a component's sentence is a template fragment, rendered in the same context
+    env.globals["fragment"] = jinja2.pass_context(
+        lambda context, src: env.from_string(src).render(context.get_all()))
     text = env.get_template("methods.j2").render(**ctx)
     return text, list(dict.fromkeys(cited))
 

@@ -59,7 +59,8 @@ def write_report(run_dir, formats=FORMATS):
     """Write the report files of the finished run or folder of runs ``run_dir``.
 
     A folder of several runs (hypotheses, grids) gets each run's report and, with a
-    comparison (compare.json), the comparison's. Returns the written paths."""
+    comparison (compare.json), the comparison's. Returns the written paths.
+    """
     from ..runfolder import check_complete
 
     run_dir = Path(run_dir)
@@ -88,9 +89,11 @@ def _sub_runs(folder):
 
 
 def compared_runs(folder):
-    """``{"rows": compare.json rows, "runs": [(name, dt, summary, path)]}`` of the
-    comparison in ``folder``; each run is found by its recorded path, else beside the
-    comparison (``folder/<name>``, ``folder/hypotheses/<name>``, or ``folder`` itself)."""
+    """Read the comparison in ``folder``: ``{"rows": ..., "runs": [(name, dt, summary, path)]}``.
+
+    ``rows`` are compare.json's; each run is found by its recorded path, else beside the
+    comparison (``folder/<name>``, ``folder/hypotheses/<name>``, or ``folder`` itself).
+    """
     from .. import posterior as post_mod
 
     rows = json.loads(_read_text(folder / "compare.json"))["runs"]
@@ -113,8 +116,11 @@ def compared_runs(folder):
 # ---------------------------------------------------------------------------- one run
 
 def write_run_products(folder, formats=FORMATS, *, dt=None, summary=None, comparison=None):
-    """Every report file of the run in ``folder`` (finished or being finished by ``fit``:
-    ``dt`` and ``summary`` may be given instead of read)."""
+    """Write every report file of the run in ``folder``.
+
+    The run is finished or being finished by ``fit``: ``dt`` and ``summary`` may be given
+    instead of read.
+    """
     from .. import posterior as post_mod
     from .tables import write_summary_ecsv
 
@@ -154,11 +160,15 @@ def write_run_products(folder, formats=FORMATS, *, dt=None, summary=None, compar
 def run_figures(dt, summary, log_text, *, comparison=None):
     """``{file stem: (Figure, caption)}`` of one run (and its comparison, if any)."""
     from .. import posterior as post_mod
-    from .figures import CORNER_MAX, corner_fig, fit_fig, panels_from_posterior
-    from .figures_more import (budget_fig, delta_teff_fig, diagnostics_fig, hypotheses_fig,
-                               later_epochs)
-
     from ..goodness import BAD_CHI2_NU
+    from .figures import CORNER_MAX, corner_fig, fit_fig, panels_from_posterior
+    from .figures_more import (
+        budget_fig,
+        delta_teff_fig,
+        diagnostics_fig,
+        hypotheses_fig,
+        later_epochs,
+    )
 
     converged = bool(summary.get("converged"))
     title = dt.attrs.get("title", "")
@@ -239,9 +249,12 @@ def _write_methods(folder, formats, record, summary, comparison):
 # --------------------------------------------------------------------- a comparison only
 
 def write_comparison_products(folder, comparison, formats=FORMATS):
-    """The files of a comparison in a folder that is not itself a run (``teffmc compare
-    --out``, the folder of a config's hypotheses): compare tables, the hypotheses, budget
-    and Delta Teff figures, and report.html linking each run's own report."""
+    """Write the files of a comparison in a folder that is not itself a run.
+
+    Such a folder is ``teffmc compare --out`` or the folder of a config's hypotheses:
+    compare tables, the hypotheses, budget and Delta Teff figures, and report.html linking
+    each run's own report.
+    """
     from .figures_more import budget_fig, delta_teff_fig, hypotheses_fig, later_epochs
     from .latex import compare_csv, compare_latex
 

@@ -40,15 +40,17 @@ def _plt():
 
 
 def rc():
-    """The rcParams of every teffmc figure (a dict for ``plt.rc_context``)."""
+    """Return the rcParams of every teffmc figure (a dict for ``plt.rc_context``)."""
     from cycler import cycler
 
     return {**RC, "axes.prop_cycle": cycler(color=SERIES)}
 
 
 def styled(build):
-    """Run a figure builder inside the journal rcParams (texts made after the figure
-    takes them from the rcParams in force when they are made)."""
+    """Run a figure builder inside the journal rcParams.
+
+    Texts made after the figure take them from the rcParams in force when they are made.
+    """
     import functools
 
     @functools.wraps(build)
@@ -59,15 +61,18 @@ def styled(build):
 
 
 def figure(width=PAGE, height=None, **kw):
-    """A figure of a journal width [inch] with constrained layout."""
+    """Return a figure of a journal width [inch] with constrained layout."""
     plt = _plt()
     with plt.rc_context(rc()):
         return plt.figure(figsize=(width, height or 0.75 * width), layout="constrained", **kw)
 
 
 def plain_text(text):
-    """Draw a matplotlib Text as typed, neither mathtext nor TeX: for user-given names
-    (a star called "$\\frac{a" would otherwise fail to parse when the figure is drawn)."""
+    r"""Draw a matplotlib Text as typed, neither mathtext nor TeX.
+
+    For user-given names (a star called "$\frac{a" would otherwise fail to parse when the
+    figure is drawn).
+    """
     text.set_usetex(False)
     text.set_parse_math(False)
     return text
@@ -84,8 +89,11 @@ DIMENSIONLESS = set()
 
 
 def unit_label(text, unit):
-    """``"text [unit]"``; a dimensionless quantity (unit "") keeps its bare symbol and is
-    recorded in :data:`DIMENSIONLESS`."""
+    """Return ``"text [unit]"``, the axis label of a quantity.
+
+    A dimensionless quantity (unit "") keeps its bare symbol and is recorded in
+    :data:`DIMENSIONLESS`.
+    """
     if not unit:
         DIMENSIONLESS.add(text)
     unit = {"um": "µm", "km/s": "km s$^{-1}$", "W m^-2": "W m$^{-2}$", "R_sun": "$R_\\odot$",
@@ -96,7 +104,8 @@ def unit_label(text, unit):
 def save(fig, stem, formats, *, converged=True):
     """Save ``fig`` as ``stem.<fmt>`` for each of ``formats`` ("pdf", "png"); close it.
 
-    Returns the written paths."""
+    Returns the written paths.
+    """
     plt = _plt()
     out = []
     for fmt in formats:
@@ -111,8 +120,11 @@ def save(fig, stem, formats, *, converged=True):
 
 
 def save_many(fig, stem, formats, *, converged=True, keep_png=None, key=None):
-    """:func:`save` that also keeps the PNG bytes in ``keep_png[key]`` (for the HTML
-    page), from the written file or, without "png" in ``formats``, drawn in memory."""
+    """Save like :func:`save` and also keep the PNG bytes in ``keep_png[key]``.
+
+    The bytes (for the HTML page) come from the written file or, without "png" in
+    ``formats``, are drawn in memory.
+    """
     import io
 
     if keep_png is not None and "png" not in formats:
@@ -131,7 +143,8 @@ def _texts(fig):
     """Every drawn, non-empty Text of a drawn figure with its window extent.
 
     Tick labels count only for the ticks matplotlib draws (those inside the view
-    limits): the others exist as Text objects with stale positions but are not drawn."""
+    limits): the others exist as Text objects with stale positions but are not drawn.
+    """
     from matplotlib.text import Text
 
     renderer = fig.canvas.get_renderer()
@@ -158,9 +171,11 @@ def _texts(fig):
 
 
 def text_overlaps(fig, pad=0.5, gap=1.0):
-    """Pairs of drawn texts whose boxes overlap or come closer than ``gap`` pixels (at the
+    """Find texts that overlap or leave the figure; ``[]`` for a clean figure.
+
+    Pairs of drawn texts whose boxes overlap or come closer than ``gap`` pixels (at the
     figure's dpi, 100 by default: 0.01 in), and texts reaching more than ``pad`` pixels
-    outside the figure. ``[]`` for a clean figure.
+    outside the figure.
 
     Tick labels that matplotlib itself hides do not count (they are not visible).
     """

@@ -67,8 +67,10 @@ def _teff_av(rows, names):
 
 @style.styled
 def survey_figures(rows, names):
-    """``{name: PNG bytes}``: Teff histogram; Teff against A_V, not-converged stars
-    flagged (open red diamonds)."""
+    """Draw the survey figures as ``{name: PNG bytes}``.
+
+    Teff histogram; Teff against A_V, not-converged stars flagged (open red diamonds).
+    """
     teff, av = _teff_av(rows, names)
     images = {}
     if teff is None:
@@ -120,8 +122,10 @@ def _png(fig):
 
 
 def write_survey_html(batch_dir):
-    """Write ``batch_dir/survey.html`` (and survey.tex, the paper table of the same
-    rows) from its batch table; return the path of survey.html."""
+    """Write ``batch_dir/survey.html`` and survey.tex from its batch table.
+
+    survey.tex is the paper table of the same rows. Returns the path of survey.html.
+    """
     batch_dir = Path(batch_dir)
     rows, names = survey_rows(batch_dir)
     shown = corner_order(names)

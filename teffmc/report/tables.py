@@ -49,7 +49,7 @@ def write_summary(summary, json_path, ecsv_path):
 
 
 def write_summary_ecsv(summary, ecsv_path):
-    """The ECSV table of :func:`write_summary` alone (``teffmc report`` redraws it)."""
+    """Write the ECSV table of :func:`write_summary` alone (``teffmc report`` redraws it)."""
     from astropy.table import Table
 
     rows = []

@@ -6,6 +6,7 @@ from .build import build_grid
 
 
 def main(argv=None):
+    """Build the grid into ``--out`` and print its checksum (``argv``: the arguments)."""
     ap = argparse.ArgumentParser(prog="python -m teffmc.photosphere.synth",
                                  description="Compute teffmc's built-in photosphere grid.")
     ap.add_argument("--out", required=True, help="output HDF5 file")

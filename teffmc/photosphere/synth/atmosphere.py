@@ -1,5 +1,7 @@
-"""LTE plane-parallel model atmosphere: T(tau), hydrostatic equilibrium, temperature
-correction toward radiative equilibrium, and the emergent surface flux.
+"""LTE plane-parallel model atmosphere and its emergent surface flux.
+
+It computes T(tau), the hydrostatic structure and the temperature correction toward
+radiative equilibrium.
 
 Start: grey T(tau) = Teff [3/4 (tau + q(tau))]^(1/4) with the Hopf function q
 (Mihalas 1978, "Stellar Atmospheres", 2nd ed., sec. 3-4; exact q(0) = 1/sqrt(3) and
@@ -73,7 +75,7 @@ def _logwave(lo, hi, r):
 
 @cache
 def wave_fine():
-    """The grid's wavelength axis: vacuum A, 3000-50000 A, log-uniform, R_pix = 2000."""
+    """Return the grid's wavelength axis: vacuum A, 3000-50000 A, log-uniform, R_pix = 2000."""
     return _logwave(3000.0, 50000.0, R_FINE)
 
 
@@ -141,8 +143,11 @@ _LP = np.arange(-5.0, 10.0001, 0.25)
 
 
 def rosseland_table(mh):
-    """log10 kappa_R [cm^2/g] on (_LT, _LP) for metallicity mh (work wavelength grid),
-    for the opacity scales in force (``bands.PHYSICS``, part of the cache key)."""
+    """Tabulate log10 kappa_R [cm^2/g] on (_LT, _LP) for metallicity ``mh``.
+
+    On the work wavelength grid, for the opacity scales in force (``bands.PHYSICS``, part
+    of the cache key).
+    """
     from .bands import PHYSICS
 
     return _rosseland_table(mh, PHYSICS["tio"], PHYSICS["haze"])
@@ -199,6 +204,7 @@ def hydrostatic(logtau, T, g, tab):
 @dataclass
 class Atmosphere:
     """A converged model: depth structure and diagnostics."""
+
     teff: float
     logg: float
     mh: float
@@ -227,8 +233,11 @@ def _solve_rt(op, T, sp, rho, m, mh):
 
 
 def _ng(x, fallback):
-    """Ng (1974, J. Chem. Phys. 61, 2680) acceleration from the last four iterates
-    (formulation as in Olson, Auer & Buchler 1986, JQSRT 35, 431; from memory)."""
+    """Extrapolate from the last four iterates by Ng acceleration.
+
+    Ng 1974, J. Chem. Phys. 61, 2680; formulation as in Olson, Auer & Buchler 1986,
+    JQSRT 35, 431 (from memory).
+    """
     d3, d2, d1 = x[3] - x[2], x[2] - x[1], x[1] - x[0]
     q1, q2 = d3 - d2, d3 - d1
     a = np.array([[q1 @ q1, q1 @ q2], [q1 @ q2, q2 @ q2]])

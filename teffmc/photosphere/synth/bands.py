@@ -130,7 +130,7 @@ def physics(tio=1.0, haze=1.0):
 
 
 def band_weights(T, sp, mh):
-    """Number density x population factors, shape (n_depth, n_basis) [cm^-3 x cm^..].
+    """Return number density x population factors, shape (n_depth, n_basis) [cm^-3 x cm^..].
 
     The TiO columns are multiplied by ``PHYSICS["tio"]``, the haze columns by
     ``PHYSICS["haze"]``.

@@ -13,6 +13,7 @@ import time
 import numpy as np
 
 from ...errors import GridError
+from . import bands
 from .atmosphere import (
     H_ODF,
     LOGTAU,
@@ -25,7 +26,6 @@ from .atmosphere import (
     wave_fine,
     wave_full,
 )
-from . import bands
 from .constants import SIGMA
 from .opacity import Opacity
 

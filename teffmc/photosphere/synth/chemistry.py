@@ -47,9 +47,11 @@ class Molecule:
         self.mass = sum(MASS[a] * n for a, n in self.atoms.items())
 
     def q_el(self, T):
+        """Return the electronic partition function at temperature ``T`` [K]."""
         return sum(g * np.exp(-HC_K * 1e-8 * te / T) for g, te in self.elec)
 
     def partition(self, T):
+        """Return the internal partition function (rotation x vibration x electronic) at T [K]."""
         c2 = HC_K * 1e-8                       # hc/k [cm K]
         if len(self.rot) == 1:                 # linear: kT / (sigma h c B)
             qrot = T / (c2 * self.rot[0] * self.sym)
@@ -62,7 +64,7 @@ class Molecule:
         return qrot * qvib * self.q_el(T)
 
     def log_kp(self, T):
-        """ln of prod(p_atoms)/p_mol in dyn cm^-2 units."""
+        """Return ln K_p = ln of prod(p_atoms)/p_mol, pressures in dyn cm^-2."""
         n = sum(self.atoms.values())
         mprod = np.prod([(MASS[a] * AMU) ** k for a, k in self.atoms.items()])
         uprod = np.prod([U0[a] ** k for a, k in self.atoms.items()])
