@@ -6,12 +6,20 @@ from teffmc.photosphere.grid import Grid
 from teffmc.photosphere.synth import build_grid
 
 
-def test_build_is_reproducible_and_readable(tmp_path):
+KW = {"teff": [3600.0], "logg": [0.0, 1.0], "mh": [0.0]}
+
+
+@pytest.fixture(scope="module")
+def small_build(tmp_path_factory):
+    """Two nodes and their nuisance grids, built in-process (one worker)."""
+    return build_grid(tmp_path_factory.mktemp("synth") / "a.h5", workers=1, **KW)
+
+
+def test_build_is_reproducible_and_readable(small_build, tmp_path):
     # same inputs -> same flux bytes -> same checksum (DESIGN.md: reproducible grid build),
     # with 1 worker in-process and 2 spawned workers
-    kw = {"teff": [3600.0], "logg": [0.0, 1.0], "mh": [0.0]}
-    g1 = build_grid(tmp_path / "a.h5", workers=1, **kw)
-    g2 = build_grid(tmp_path / "b.h5", workers=2, **kw)
+    g1 = small_build
+    g2 = build_grid(tmp_path / "b.h5", workers=2, **KW)
     if g1.checksum != g2.checksum:
         pytest.fail("grid checksum depends on the number of workers")
     back = Grid.read(str(tmp_path / "b.h5"))
@@ -25,11 +33,11 @@ def test_build_is_reproducible_and_readable(tmp_path):
     assert nuisance_checksum(g1.nuisance) == nuisance_checksum(g2.nuisance)
 
 
-def test_tio_axis_deepens_the_7054_band(tmp_path):
+def test_tio_axis_deepens_the_7054_band(small_build):
     """Twice the TiO opacity deepens the TiO 7054 A band head at 3600 K (its depth grows
     with the band opacity: curve of growth, common practice, no source)."""
 
-    g = build_grid(tmp_path / "n.h5", workers=1, teff=[3600.0], logg=[0.0], mh=[0.0])
+    g = small_build                     # node (3600 K, log g 0, [M/H] 0) is [0, 0, 0]
     a = g.nuisance[0]
     w = g.wave
     band = (w > 7060) & (w < 7100)      # vacuum, just redward of the head
