@@ -39,7 +39,7 @@ def _cmd_batch(args):
     for lst in args.list or []:
         configs += read_config_list(lst)
     table = fit_many(configs, args.out, workers=args.workers, redo=args.redo,
-                     quiet=args.quiet, scheduler=args.scheduler)
+                     quiet=args.quiet, scheduler=args.scheduler, netcdf=args.netcdf)
     return 1 if any(s == "failed" for s in table["status"]) else 0
 
 
@@ -206,6 +206,10 @@ def _add_batch(sub):
     b.add_argument("--redo", action="store_true",
                    help="fit again stars whose folder holds a finished run")
     b.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    b.add_argument("--netcdf", action="store_true",
+                   help="also write OUT/batch-summaries.nc: every star's posterior summaries "
+                   "(median, p16, p84, mean, sd, r_hat, ess_bulk of every parameter and "
+                   "derived quantity) in one netCDF file, dimension star")
     b.set_defaults(func=_cmd_batch)
 
 

@@ -33,6 +33,8 @@ def row_from_summary(star, config, path, out, wall):
         "run": Path(path).parent.relative_to(out).as_posix(),
         "hypothesis": s.get("hypothesis") or "",
         "stats": {name: {k: st[k] for k in STATS} for name, st in s["parameters"].items()},
+        # every statistic of the parameters and derived quantities (batch-summaries.nc)
+        "summaries": {g: s.get(g) or {} for g in ("parameters", "derived")},
         "cautions": [c for c in s.get("cautions", []) if not c.startswith("not converged")],
     }
 
@@ -41,7 +43,7 @@ def plain_row(star, config, status, reason="", wall=None):
     """Return the table row of a star without a finished run (pending, failed, ...)."""
     return {"star": star, "config": str(config), "status": status, "reason": reason,
             "caution": "", "wall_time_s": wall, "n_steps": None, "run": "", "hypothesis": "",
-            "stats": {}, "cautions": []}
+            "stats": {}, "summaries": {}, "cautions": []}
 
 
 def survey_table(rows):
