@@ -5,7 +5,6 @@ import pytest
 from teffmc.photosphere.grid import Grid
 from teffmc.photosphere.synth import build_grid
 
-
 KW = {"teff": [3600.0], "logg": [0.0, 1.0], "mh": [0.0]}
 
 
