@@ -36,11 +36,15 @@ row per star. Design:
 - the tables are rewritten atomically (temporary file + ``os.replace``) whenever a star
   finishes, so a killed batch leaves valid tables (unfinished stars "pending");
 - the numbers in the table are copied from each run's ``summary.json``, never
-  recomputed.
+  recomputed;
+- optionally (``netcdf=True``, ``--netcdf``) every star's posterior summaries go into one
+  netCDF file, ``OUT/batch-summaries.nc`` (:mod:`.netcdf`), written after the batch and
+  at most once a minute while it runs.
 
 Modules: :mod:`.plan` (the list file, one star per config stem, finished runs),
 :mod:`.task` (what a worker runs per star), :mod:`.engine` (the Dask cluster or client,
 submission, results, the engine report), :mod:`.tables` (batch.ecsv and batch.parquet),
+:mod:`.netcdf` (batch-summaries.nc),
 :mod:`.driver` (``fit_many``: the batch in the main process, its log).
 """
 
