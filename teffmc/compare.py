@@ -33,15 +33,30 @@ class Comparison:
     out: Path | None
 
 
-def compare_runs(run_dirs, out=None):
+def _in_memory(d, fitted):
+    """Return ``(folder, posterior, summary)`` of run folder ``d``.
+
+    Taken from the :class:`~teffmc.run.FitResult` of ``fitted`` whose ``out`` is ``d``
+    (a run just fitted, compared in memory), else read from the folder.
+    """
+    from .report.tables import strict_json
+
+    for r in fitted:
+        if Path(r.out).resolve() == Path(d).resolve():
+            return Path(d), r.posterior, strict_json(r.summary)
+    return Path(d), *post_mod.load_run(d)
+
+
+def compare_runs(run_dirs, out=None, *, fitted=()):
     """Compare hypotheses; write compare.json, compare.ecsv and the report into ``out``.
 
     The comparison's report: figures, compare_table.tex/.csv, report.html
-    (teffmc.report.output).
+    (teffmc.report.output). ``fitted``: FitResults of runs among ``run_dirs`` just
+    fitted in this process, compared from memory instead of read back from their folders.
     """
     if len(run_dirs) < 2:
         raise DataError("compare needs at least two run folders", file=str(run_dirs[0]))
-    runs = [(Path(d), *post_mod.load_run(d)) for d in run_dirs]
+    runs = [_in_memory(d, fitted) for d in run_dirs]
     labels = [s.get("hypothesis") or d.name for d, _, s in runs]
     if len(set(labels)) != len(labels):
         raise DataError(f"two runs have the same name ({', '.join(labels)}); rename a folder",

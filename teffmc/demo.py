@@ -148,9 +148,9 @@ def run_demo(out, *, quiet=False):
             for f in d.iterdir():
                 shutil.move(str(f), str(out / f.name))
             d.rmdir()
-            d = out
+            d = results[name].out = out
         dirs.append(d)
-    comp = compare_runs(dirs, out)
+    comp = compare_runs(dirs, out, fitted=results.values())
     for name, res in results.items():
         print(f"\n== hypothesis {name}\n{summary_to_text(res.summary)}")
     print("\n" + comp.text)

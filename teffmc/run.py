@@ -265,7 +265,7 @@ def _fit_locked(cfg, out, *, resume, quiet, overwrite):
             print(f"== hypothesis {name}", file=sys.stderr)
         results[name] = fit_one(v, d, resume=resume and partial.exists(), quiet=quiet,
                                 other_models=models, hypothesis=name)
-    comp = compare_runs([out / name for name, _ in variants], out)
+    comp = compare_runs([out / name for name, _ in variants], out, fitted=results.values())
     if not quiet:
         print(comp.text, file=sys.stderr)
     best_name = comp.rows[0]["run"]

@@ -100,6 +100,18 @@ def test_compare_same_data_writes_tables_and_figure(two_runs, capsys):
     assert (tmp / "cmp" / "compare.ecsv").exists()
 
 
+def test_compare_in_memory_equals_compare_from_the_folders(two_runs):
+    """Runs just fitted are compared from their FitResults (not read back): same rows."""
+    from teffmc.compare import compare_runs
+
+    tmp, ra, rb, _ = two_runs
+    dirs = [tmp / "run_a", tmp / "run_b"]
+    disk = compare_runs(dirs)
+    memory = compare_runs(dirs, fitted=[ra, rb])
+    assert json.dumps(memory.rows) == json.dumps(disk.rows)   # NaN (no evidence) as text
+    assert memory.text == disk.text
+
+
 def test_compare_refuses_runs_on_different_data(two_runs, capsys):
     tmp = two_runs[0]
     rc = main(["compare", str(tmp / "run_a"), str(tmp / "run_c")])
