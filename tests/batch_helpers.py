@@ -102,3 +102,25 @@ class Cluster:
             kill_tree(p)
         for f in self.logs:
             f.close()
+
+
+def same_row(t, star, ref):
+    """Assert that star's row of batch table t holds the numbers of the one-row table ref."""
+    row = t[list(t["star"]).index(star)]
+    for col in ref.colnames:
+        if col.endswith(("_median", "_p16", "_p84")) or col in ("n_steps", "status"):
+            assert row[col] == ref[0][col], col
+
+
+def blackbody_grid_file(path):
+    """Planck surface fluxes tabulated as a grid file (Teff 3000-6000 K every 100 K,
+    R ~ 2000 from 0.3 to 3 micron), so that a batch reads a grid file."""
+    from teffmc.photosphere import Grid, planck_surface_flux
+
+    teff = np.arange(3000.0, 6001.0, 100.0)
+    wave = np.geomspace(3000.0, 30000.0, 4600)
+    lf = np.log10(planck_surface_flux(wave, teff)).astype(np.float32)
+    lf = np.broadcast_to(lf[:, None, None, :], (teff.size, 2, 2, wave.size))
+    Grid(teff, np.array([0.0, 1.0]), np.array([-0.5, 0.0]), wave, lf,
+         provenance={"source": "Planck's law, tabulated for a test"}, name="bb").write(path)
+    return path
