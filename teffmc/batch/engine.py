@@ -73,8 +73,12 @@ class Engine:
             # worker-saturation 1.0: with more stars than twice the threads, Dask keeps
             # them queued on the scheduler and a worker holds only the star it fits, so a
             # dying worker takes no innocent star down with it (see ALLOWED_FAILURES)
+            # worker profile off: Dask's statistical profiler samples the fitting thread
+            # every 10 ms, and a star then cost 11-13 s of CPU instead of 6-8 s in a
+            # 50-star batch on one worker (bench/bench_batch.py, README)
             with dask.config.set({"distributed.scheduler.worker-saturation": 1.0,
-                                  "distributed.scheduler.allowed-failures": ALLOWED_FAILURES}):
+                                  "distributed.scheduler.allowed-failures": ALLOWED_FAILURES,
+                                  "distributed.worker.profile.enabled": False}):
                 self.cluster = LocalCluster(
                     n_workers=self.workers, threads_per_worker=1, processes=True,
                     dashboard_address=":0",  # a free port
