@@ -106,3 +106,35 @@ def test_errors():
         lsf_matrix(wave_in[::-1], np.array([5050.0, 5051.0]), fwhm_A=1.0)
     with pytest.raises(DataError, match="pixels"):
         apply_lsf(lsf_matrix(wave_in, np.array([5050.0, 5051.0]), fwhm_A=1.0), np.ones(7))
+
+
+def test_hat_average_is_the_transpose_of_linear_interpolation(rng):
+    """sum_j g(x_j) F_j dx_j = sum_k g(y_k) N_k Fbar_k for any g linear between the output
+    nodes y (hat functions phi_k, N_k = sum_j phi_k(x_j) dx_j): the identity that makes a
+    band integral on hat-averaged coarse pixels exact for a filter linear between them
+    (the adjoint of interpolation, common practice, no source)."""
+    from teffmc.observe.lsf import hat_average_matrix
+
+    x = np.geomspace(3000.0, 9000.0, 4000)
+    y = np.geomspace(3000.0, 9000.0, 300)
+    a = hat_average_matrix(x, y)
+    np.testing.assert_allclose(np.asarray(a.sum(axis=1)).ravel(), 1.0, rtol=1e-12)
+    flux = 1.0 + rng.uniform(0.0, 1.0, x.size)
+    g_nodes = rng.uniform(0.0, 1.0, y.size)
+    g = np.interp(x, y, g_nodes)
+    dx = np.gradient(x)
+    phi = np.array([np.interp(x, y, np.eye(y.size)[k]) for k in range(y.size)])
+    norm = phi @ dx
+    assert np.sum(g * flux * dx) == pytest.approx(np.sum(g_nodes * norm * (a @ flux)),
+                                                  rel=1e-12)
+
+
+def test_hat_average_refuses_output_outside_or_finer_than_the_input():
+    from teffmc.errors import DataError
+    from teffmc.observe.lsf import hat_average_matrix
+
+    x = np.linspace(4000.0, 5000.0, 101)
+    with pytest.raises(DataError, match="inside the input"):
+        hat_average_matrix(x, np.linspace(3990.0, 5000.0, 10))
+    with pytest.raises(DataError, match="no input pixel"):
+        hat_average_matrix(x, np.concatenate([[4000.0, 4000.1, 4000.2], [5000.0]]))

@@ -21,7 +21,7 @@ from scipy.special import ndtr
 
 from teffmc.errors import ConfigError, DataError
 
-__all__ = ["FWHM_PER_SIGMA", "apply_lsf", "convolve_resample", "lsf_matrix"]
+__all__ = ["FWHM_PER_SIGMA", "apply_lsf", "convolve_resample", "hat_average_matrix", "lsf_matrix"]
 
 FWHM_PER_SIGMA = 2.0 * np.sqrt(2.0 * np.log(2.0))  # 2.3548..., Gaussian FWHM / sigma
 _NSIGMA = 5.0
@@ -113,6 +113,51 @@ def lsf_matrix(wave_in, wave_out, *, resolution=None, fwhm_A=None):
         )
     norm = np.bincount(rows, weights=weight, minlength=y.size)
     return sparse.csr_matrix((weight / norm[rows], (rows, cols)), shape=(y.size, x.size))
+
+
+def hat_average_matrix(wave_in, wave_out):
+    """Sparse matrix of hat-weighted means: each output pixel averages the input around it.
+
+    Output pixel k gets ``int F phi_k dlambda / int phi_k dlambda`` over the input pixels
+    (trapezoid weights), with ``phi_k`` the hat function of linear interpolation on
+    ``wave_out`` (1 at its own node, 0 at its neighbours). This is the transpose of linear
+    interpolation from ``wave_out`` to ``wave_in``: a band integral of a filter that is
+    linear between output nodes is then exact, and the edge pixels need no input beyond
+    ``wave_out``'s span (unlike a Gaussian line-spread).
+
+    Parameters
+    ----------
+    wave_in : array_like, shape (n_in,)
+        Input wavelengths [Angstrom], strictly increasing.
+    wave_out : array_like, shape (n_out,)
+        Output wavelengths [Angstrom], strictly increasing, n_out >= 2, inside the input
+        range, with at least one input pixel between neighbouring output nodes.
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix, shape (n_out, n_in)
+        Rows sum to one. Apply with :func:`apply_lsf`.
+    """
+    x = _check_axis(wave_in, "wave_in")
+    y = _check_axis(wave_out, "wave_out")
+    if y.size < 2 or y[0] < x[0] or y[-1] > x[-1]:
+        raise DataError(f"output wavelengths {y[0]:.6g}-{y[-1]:.6g} A (n = {y.size}) should "
+                        f"lie inside the input {x[0]:.6g}-{x[-1]:.6g} A with n >= 2",
+                        column="wave_out", value=y.size)
+    cols = np.flatnonzero((x >= y[0]) & (x <= y[-1]))
+    xin = x[cols]
+    dx = np.gradient(x)[cols]               # trapezoid weights of the input pixels
+    j = np.clip(np.searchsorted(y, xin, side="right") - 1, 0, y.size - 2)
+    t = (xin - y[j]) / (y[j + 1] - y[j])
+    rows = np.concatenate([j, j + 1])
+    weight = np.concatenate([(1.0 - t) * dx, t * dx])
+    norm = np.bincount(rows, weights=weight, minlength=y.size)
+    if np.any(norm <= 0):
+        k = int(np.argmin(norm))
+        raise DataError(f"no input pixel near output wavelength {y[k]:.6g} A: the output "
+                        "pixels are finer than the input's", column="wave_out", value=y[k])
+    return sparse.csr_matrix((weight / norm[rows], (rows, np.concatenate([cols, cols]))),
+                             shape=(y.size, x.size))
 
 
 def apply_lsf(matrix, flux_in):

@@ -97,10 +97,10 @@ class BlackbodyGrid:
         """Return one spectrum: ``(wave [Angstrom, vacuum], surface F_lambda)``."""
         return self.wave.copy(), self.interpolate(teff, logg, mh)[0]
 
-    def on_pixels(self, wave, *, resolution=None, fwhm_A=None):
+    def on_pixels(self, wave, *, resolution=None, fwhm_A=None, average=False):
         """Return the same photosphere evaluated on ``wave`` [Angstrom, vacuum].
 
-        A Planck curve is smooth, so the line-spread function changes it by far less than
-        any data error and is skipped.
+        A Planck curve is smooth, so the line-spread function (or the hat average) changes
+        it by far less than any data error and is skipped.
         """
         return BlackbodyGrid(wave)

@@ -284,20 +284,30 @@ class Grid:
         return self.wave.copy(), self.interpolate(teff, logg, mh)[0]
 
     # ------------------------------------------------------------------ resampling
-    def on_pixels(self, wave, *, resolution=None, fwhm_A=None):
+    def on_pixels(self, wave, *, resolution=None, fwhm_A=None, average=False):
         """Return a new grid on the pixels ``wave`` [Angstrom, vacuum].
 
         The flux is convolved with a Gaussian line-spread function of resolving power
         ``resolution`` (or FWHM ``fwhm_A``) and resampled, once for all nodes: this is
         the per-run precomputation, so that sampling only interpolates on the pixels.
+        ``average=True`` instead takes hat-weighted means of the flux around each pixel
+        (:func:`teffmc.observe.lsf.hat_average_matrix`: coarse pixels for broad bands).
         """
         wave = np.asarray(wave, float)
         if wave[0] < self.wave[0] or wave[-1] > self.wave[-1]:
             raise GridError(
                 f"grid {self.name!r} covers {self.wave[0]:.1f}-{self.wave[-1]:.1f} Angstrom "
                 f"but the data need {wave[0]:.1f}-{wave[-1]:.1f} Angstrom")
-        def cube(lf):
-            return self._cube_on_pixels(lf, wave, resolution, fwhm_A)
+        if average:
+            from ..observe.lsf import hat_average_matrix
+
+            matrix = hat_average_matrix(self.wave, wave)
+
+            def cube(lf):
+                return self._cube_through(lf, matrix)
+        else:
+            def cube(lf):
+                return self._cube_on_pixels(lf, wave, resolution, fwhm_A)
 
         axes = tuple(replace(a, minus=cube(a.minus), plus=cube(a.plus)) for a in self.nuisance)
         return Grid(self.teff, self.logg, self.mh, wave, cube(self.log_flux), self.provenance,
@@ -305,7 +315,7 @@ class Grid:
 
     def _cube_on_pixels(self, log_flux, wave, resolution, fwhm_A):
         """One (n_teff, n_logg, n_mh, n_wave) log-flux cube on the pixels ``wave``."""
-        from ..observe.lsf import convolve_resample
+        from ..observe.lsf import lsf_matrix
 
         if resolution is None and fwhm_A is None:
             # no line-spread function: slice when the pixels are the grid's own,
@@ -316,9 +326,17 @@ class Grid:
             j = np.clip(i - 1, 0, self.wave.size - 2)
             w = (wave - self.wave[j]) / (self.wave[j + 1] - self.wave[j])
             return (1 - w) * log_flux[..., j] + w * log_flux[..., j + 1]
+        return self._cube_through(log_flux, lsf_matrix(self.wave, wave, resolution=resolution,
+                                                       fwhm_A=fwhm_A))
+
+    @staticmethod
+    def _cube_through(log_flux, matrix):
+        """Apply a (n_out, n_wave) matrix to the flux (not its log) of every node."""
+        from ..observe.lsf import apply_lsf
+
         present = np.all(np.isfinite(log_flux), axis=-1)
         flux = np.where(present[..., None], 10.0 ** np.asarray(log_flux, float), 1.0)
-        res = convolve_resample(self.wave, flux, wave, resolution=resolution, fwhm_A=fwhm_A)
+        res = apply_lsf(matrix, flux)
         return np.where(present[..., None], np.log10(res), np.nan)
 
     # ------------------------------------------------------------------ file I/O
