@@ -217,7 +217,8 @@ def _check(sampler, tau_at, n, check_every, names, min_steps, tau_factor, tau_rt
     prev = ((n - 1) // check_every) * check_every
     tau = tau_at(n)
     converged, text = stop_rule(n, tau, tau_at(prev), names=names, min_steps=min_steps,
-                                tau_factor=tau_factor, tau_rtol=tau_rtol, prev_step=prev)
+                                tau_factor=tau_factor, tau_rtol=tau_rtol, prev_step=prev,
+                                n_walkers=sampler.nwalkers)
     if converged and rhat_max is not None:
         converged, text = _rhat_check(sampler.get_chain(), tau, n, names, rhat_max, text)
     return tau, converged, text
