@@ -250,7 +250,8 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
         Hard step limit, no convergence before ``min_steps``, stop-rule cadence [steps].
     tau_factor, tau_rtol : float, optional
         Stop when ``n > tau_factor * max(tau)`` and tau changed by less than ``tau_rtol``
-        (relative) over the last ``check_every`` steps (module docstring).
+        per 100 steps (relative), or 3 sd of its estimator noise if larger, over the last
+        ``check_every`` steps (:mod:`teffmc.sampling_stop`).
     moves : emcee move or list of (move, weight), optional
         Default :func:`default_moves`.
     checkpoint : str or os.PathLike, optional
