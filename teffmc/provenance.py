@@ -18,6 +18,7 @@ from .sampling_stop import (
     RHAT_MAX,
     RHAT_WALKER_MAX,
     TAU_FACTOR,
+    TAU_NOISE_K,
     TAU_RTOL,
     THIN_TAUS,
 )
@@ -88,7 +89,8 @@ def run_provenance(prep):
                     "n_starts": s.n_starts, "seed": s.seed, "evidence": bool(s.evidence),
                     "nlive": s.nlive,
                     "moves": [{"name": n, "weight": w, "ref": r} for n, w, r in MOVES],
-                    "tau_factor": TAU_FACTOR, "tau_rtol": TAU_RTOL, "rhat_max": RHAT_MAX,
+                    "tau_factor": TAU_FACTOR, "tau_rtol": TAU_RTOL,
+                    "tau_noise_k": TAU_NOISE_K, "rhat_max": RHAT_MAX,
                     "rhat_groups": RHAT_GROUPS, "rhat_walker_max": RHAT_WALKER_MAX,
                     "burn_taus": BURN_TAUS, "thin_taus": THIN_TAUS,
                     "log_coordinates": [n for n, p in zip(prep.space.names, prep.space.priors)

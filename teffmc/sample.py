@@ -217,7 +217,8 @@ def _check(sampler, tau_at, n, check_every, names, min_steps, tau_factor, tau_rt
     prev = ((n - 1) // check_every) * check_every
     tau = tau_at(n)
     converged, text = stop_rule(n, tau, tau_at(prev), names=names, min_steps=min_steps,
-                                tau_factor=tau_factor, tau_rtol=tau_rtol, prev_step=prev)
+                                tau_factor=tau_factor, tau_rtol=tau_rtol, prev_step=prev,
+                                n_walkers=sampler.nwalkers)
     if converged and rhat_max is not None:
         converged, text = _rhat_check(sampler.get_chain(), tau, n, names, rhat_max, text)
     return tau, converged, text
@@ -249,7 +250,8 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
         Hard step limit, no convergence before ``min_steps``, stop-rule cadence [steps].
     tau_factor, tau_rtol : float, optional
         Stop when ``n > tau_factor * max(tau)`` and tau changed by less than ``tau_rtol``
-        (relative) over the last ``check_every`` steps (module docstring).
+        per 100 steps (relative), or 3 sd of its estimator noise if larger, over the last
+        ``check_every`` steps (:mod:`teffmc.sampling_stop`).
     moves : emcee move or list of (move, weight), optional
         Default :func:`default_moves`.
     checkpoint : str or os.PathLike, optional

@@ -183,3 +183,55 @@ def test_stop_check_refuses_walkers_stranded_in_two_modes():
     good = _ar1_walkers(rng, 2000, 48, 1, 20.0)
     ok, text = _rhat_check(good, np.array([20.0]), 2000, ["teff"], 1.01, "tau ok")
     assert ok, text
+
+
+def test_ensemble_mean_autocorr_time_is_unbiased_at_50_tau(rng):
+    """At 50 tau the walker-averaged estimator about the ensemble mean is within its noise
+    of the AR(1) truth, while emcee's (each walker about its own mean) is biased low by
+    ~2 c tau / n ~ 20 % (the reason for the ensemble mean, see autocorr_time)."""
+    import emcee
+
+    phi = np.full(8, 0.95)                       # tau = 39 steps
+    chain = ar1_chain(rng, phi, 2000, 48)
+    ours = autocorr_time(chain) / 39.0
+    theirs = emcee.autocorr.integrated_time(chain, c=5, tol=0) / 39.0
+    # 8 parameters, each with relative sd sqrt(2 (2M + 1) / N) ~ 9 %: mean sd ~ 3 %
+    assert abs(ours.mean() - 1.0) < 0.08, ours
+    assert theirs.mean() < 0.9, theirs
+
+
+def test_tau_change_sd_matches_the_spread_of_changes(rng):
+    """The stated noise of the change between two checks agrees with the spread of that
+    change over AR(1) replicates (Madras & Sokal's variance, see tau_change_sd)."""
+    from teffmc.sampling_stop import tau_change_sd
+
+    changes, predicted = [], []
+    for _ in range(12):
+        chain = ar1_chain(rng, np.full(6, 0.9), 1000, 48)       # tau 19, n ~ 53 tau
+        t1, t0 = autocorr_time(chain), autocorr_time(chain[:800])
+        changes.append((t1 - t0) / t1)
+        predicted.append(tau_change_sd(t1, 1000, 800, 48))
+    spread = np.std(np.concatenate(changes))
+    assert 0.6 < spread / np.mean(predicted) < 1.5, (spread, np.mean(predicted))
+
+
+def test_stationary_walkers_stop_soon_after_50_tau(rng):
+    """Ten parameters of stationary AR(1) walkers (tau 19, 48 walkers, checks every 100
+    steps): with the noise floor the rule stops within ~65 tau; the plain emcee-tutorial
+    tolerance (no n_walkers) waits for lucky noise far longer."""
+    tau_true = 19.0
+    chain = ar1_chain(rng, np.full(10, 0.9), int(150 * tau_true), 48)
+    rule = {"names": [f"p{i}" for i in range(10)], "min_steps": 100, "tau_factor": 50.0,
+            "tau_rtol": 0.01}
+
+    def first_stop(**kw):
+        prev = autocorr_time(chain[:800])
+        for n in range(900, chain.shape[0] + 1, 100):
+            tau = autocorr_time(chain[:n])
+            if stop_rule(n, tau, prev, prev_step=n - 100, **rule, **kw)[0]:
+                return n / tau_true
+            prev = tau
+        return np.inf
+
+    assert first_stop(n_walkers=48) < 65.0
+    assert first_stop() > first_stop(n_walkers=48)

@@ -32,6 +32,13 @@ ENTRIES = {
   year = {2006}, volume = {16}, number = {3}, pages = {239--249},
   doi = {10.1007/s11222-006-8769-1}
 }"""),
+    "MadrasSokal1988": ("Madras & Sokal 1988", """@article{MadrasSokal1988,
+  author = {Madras, Neal and Sokal, Alan D.},
+  title = {The Pivot Algorithm: A Highly Efficient {Monte Carlo} Method for the
+           Self-Avoiding Walk},
+  journal = {Journal of Statistical Physics},
+  year = {1988}, volume = {50}, pages = {109--186}
+}"""),
     "Vehtari2021": ("Vehtari et al. 2021", """@article{Vehtari2021,
   author = {Vehtari, Aki and Gelman, Andrew and Simpson, Daniel and Carpenter, Bob and
             B{\\"u}rkner, Paul-Christian},
