@@ -22,9 +22,11 @@ def target():
 @pytest.fixture(scope="module")
 def result(target):
     x0 = find_start(target.log_prob, target.sample_prior, rng=np.random.default_rng(7))
-    # checks every 100 steps: the emcee tutorial's setting (1 % tau tolerance)
+    # checks every 100 steps: the emcee tutorial's setting (1 % tau tolerance). At least
+    # 2000 steps (~110 tau; the stop rule alone stops at ~1000) so that the KS checks
+    # below have the power test_ks_detects_a_wrong_spread asks of them
     return run_sampler(target.log_prob, x0, names=target.names, seed=11, progress=False,
-                       check_every=100)
+                       check_every=100, min_steps=2000)
 
 
 def test_converges_with_sane_bookkeeping(result, target):
