@@ -32,7 +32,7 @@ class SamplerCoordinates:
     the priors on x are unchanged (tests/test_coordinates.py).
     """
 
-    def __init__(self, space, log_post):
+    def __init__(self, space, log_post, colour=None):
         self.log_post = log_post
         self.space = space
         self.log = np.array([p.kind == "loguniform" for p in space.priors], bool)
@@ -46,10 +46,52 @@ class SamplerCoordinates:
                 if not (self.log[k] or self.log[c]):
                     self.pairs.append((k, c))
         self.pairs = np.array(self.pairs, int).reshape(-1, 2)
+        self.colour = self._colour_slots(colour)
+
+    def _colour_slots(self, table):
+        """Columns of the colour coordinates (teffmc.sampling_colour), or None.
+
+        Used when ``table`` is given and teff, theta and a_v are free in a single set
+        (one epoch, or shared), theta has a log-uniform prior, teff and a_v are plain,
+        and log g and [M/H] are free plain parameters or fixed.
+        """
+        if table is None:
+            return None
+        names = list(self.space.names)
+        if not all(n in names for n in ("teff", "theta", "a_v")):
+            return None
+        it, ith, ia = (names.index(n) for n in ("teff", "theta", "a_v"))
+        if not self.log[ith] or self.log[it] or self.log[ia]:
+            return None
+        fixed = self.space.fixed_values()
+        slots = {"table": table, "teff": it, "theta": ith, "a_v": ia}
+        for ax in ("logg", "mh"):
+            if ax in names and not self.log[names.index(ax)]:
+                slots[ax] = names.index(ax)
+            elif ax in fixed:
+                slots[ax] = float(fixed[ax])
+            else:
+                return None
+        return slots
+
+    def _axes(self, u):
+        col = self.colour
+        return [u[..., col[a]] if isinstance(col[a], int) else col[a]
+                for a in ("teff", "logg", "mh")]
+
+    def _from_colour(self, u):
+        """u with (V, C) replaced by (ln theta, A_V) (a copy)."""
+        u = np.array(u, float, copy=True)
+        if self.colour is not None:
+            col = self.colour
+            ln_theta, a_v = col["table"].to_theta_av(*self._axes(u), u[..., col["theta"]],
+                                                     u[..., col["a_v"]])
+            u[..., col["theta"]], u[..., col["a_v"]] = ln_theta, a_v
+        return u
 
     def to_x(self, u):
         """Map sampler coordinates ``u`` (..., ndim) to parameters ``x``; NaN where invalid."""
-        x = np.array(u, float, copy=True)
+        x = self._from_colour(u)
         x[..., self.log] = np.exp(x[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -64,16 +106,21 @@ class SamplerCoordinates:
         u[..., self.log] = np.log(u[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
         u[..., t] = -np.log1p(u[..., c] * np.expm1(-u[..., t]))   # e = -ln(1 - d)
+        if self.colour is not None:
+            col = self.colour
+            v, c = col["table"].to_v_c(*self._axes(u), u[..., col["theta"]], u[..., col["a_v"]])
+            u[..., col["theta"]], u[..., col["a_v"]] = v, c
         return u
 
     def jacobian(self, u):
         """Return log |dx/du| at ``u`` (..., ndim), shape (...)."""
-        u = np.asarray(u)
+        u = self._from_colour(u)
         t, c = self.pairs[:, 0], self.pairs[:, 1]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             d = -np.expm1(-u[..., t])
             pair = -np.sum(u[..., t] + np.log(u[..., c] - d), axis=-1)
-        return np.sum(u[..., self.log], axis=-1) + pair
+        const = self.colour["table"].log_det if self.colour is not None else 0.0
+        return np.sum(u[..., self.log], axis=-1) + pair + const
 
     def __call__(self, u):
         """Return the log density in ``u``, log p(x(u)) + log |dx/du|, shape (n,)."""
