@@ -86,7 +86,7 @@ def sample_posterior(prep, checkpoint, *, resume, quiet, log):
 
 
 def _colour_table(prep):
-    """The grid's colour table when the colour coordinates could apply, else None."""
+    """Return the grid's colour table when the colour coordinates could apply, else None."""
     from .sampling_colour import colour_table
 
     names = set(prep.space.names)

@@ -195,9 +195,10 @@ def _rhat_check(chain, tau, n, names, rhat_max, text):
 
 
 def _initial_state(log_prob, x0, checkpoint, resume, names, n_walkers, seed, ball_scale,
-                   say):
+                   say, coordinates="standard"):
     """(seed, emcee state, backend, resumed?) from the checkpoint or a fresh start."""
-    saved = resume_state(checkpoint, names, n_walkers, seed) if resume and checkpoint else None
+    saved = (resume_state(checkpoint, names, n_walkers, seed, coordinates)
+             if resume and checkpoint else None)
     if saved is not None:
         state = emcee.State(saved["chain"][-1], log_prob=saved["log_prob"][-1],
                             random_state=saved["random_state"])
@@ -293,8 +294,9 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
     if seed is not None and (not isinstance(seed, (int, np.integer)) or seed < 0):
         raise ConfigError(f"should be a non-negative integer but got {seed!r}", key="seed")
     say = log if log is not None else (lambda line: None)
+    tag = getattr(log_prob, "coordinate_tag", "standard")
     seed, state, backend, resumed = _initial_state(log_prob, x0, checkpoint, resume, names,
-                                                   n_walkers, seed, ball_scale, say)
+                                                   n_walkers, seed, ball_scale, say, tag)
     interrupt = DeferredInterrupt(log_prob)  # Ctrl-C: stop between steps, no emcee traceback
     sampler = emcee.EnsembleSampler(n_walkers, ndim, interrupt, vectorize=True,
                                     moves=default_moves() if moves is None else moves,
@@ -327,7 +329,7 @@ def run_sampler(log_prob, x0, *, names, n_walkers=48, seed=None, max_steps=20000
             if checkpoint:
                 write_checkpoint(checkpoint, sampler.get_chain(), sampler.get_log_prob(),
                                  backend.accepted, state.random_state, n_saved=n_saved,
-                                 seed=seed, names=names)
+                                 seed=seed, names=names, coordinates=tag)
                 n_saved = n
     finally:
         bar.close()

@@ -88,6 +88,7 @@ def read_checkpoint(path):
                 ),
                 "seed": int(g.attrs["teffmc_seed"]),
                 "names": list(json.loads(g.attrs["teffmc_names"])),
+                "coordinates": _text(g.attrs.get("teffmc_coordinates", "standard")),
             }
     except (OSError, KeyError, ValueError) as exc:
         raise ConfigError(
@@ -95,7 +96,12 @@ def read_checkpoint(path):
         ) from exc
 
 
-def write_checkpoint(path, chain, log_prob, accepted, random_state, *, n_saved, seed, names):
+def _text(value):
+    return value.decode() if isinstance(value, bytes) else str(value)
+
+
+def write_checkpoint(path, chain, log_prob, accepted, random_state, *, n_saved, seed, names,
+                     coordinates="standard"):
     """Append the steps ``chain[n_saved:]`` to the checkpoint, atomically.
 
     Parameters
@@ -138,11 +144,12 @@ def write_checkpoint(path, chain, log_prob, accepted, random_state, *, n_saved, 
         g.attrs["iteration"] = n_steps
         g.attrs["teffmc_seed"] = int(seed)
         g.attrs["teffmc_names"] = json.dumps(list(names))
+        g.attrs["teffmc_coordinates"] = str(coordinates)
         g.attrs["teffmc_sha256"] = chain_checksum(chain, log_prob, accepted)
     os.replace(tmp, path)
 
 
-def resume_state(checkpoint, names, n_walkers, seed):
+def resume_state(checkpoint, names, n_walkers, seed, coordinates="standard"):
     """Read ``checkpoint`` and check that it belongs to this run.
 
     Parameters
@@ -155,6 +162,9 @@ def resume_state(checkpoint, names, n_walkers, seed):
         Ensemble size of this run.
     seed : int or None
         Seed of this run; ``None`` accepts the stored one.
+    coordinates : str
+        The sampler coordinates of this run (``SamplerCoordinates.coordinate_tag``); a
+        checkpoint without the tag was written in the "standard" ones.
 
     Returns
     -------
@@ -164,7 +174,7 @@ def resume_state(checkpoint, names, n_walkers, seed):
     Raises
     ------
     ConfigError
-        If names, walkers or seed differ from the checkpoint's.
+        If names, walkers, seed or coordinates differ from the checkpoint's.
     """
     saved = read_checkpoint(checkpoint)
     if saved is None:
@@ -180,6 +190,10 @@ def resume_state(checkpoint, names, n_walkers, seed):
     if seed is not None and int(seed) != saved["seed"]:
         problems.append(("seed", f"was written with seed {saved['seed']} but this run has "
                                  f"seed {seed}", seed))
+    if saved["coordinates"] != coordinates:
+        problems.append(("coordinates", f"holds a chain in {saved['coordinates']} sampler "
+                                        f"coordinates but this run samples in {coordinates}",
+                         coordinates))
     if problems:
         key, message, value = problems[0]
         raise ConfigError(f"checkpoint {message}; start afresh without resume",

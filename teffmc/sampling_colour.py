@@ -65,7 +65,8 @@ class ColourTable:
     def to_v_c(self, teff, logg, mh, ln_theta, a_v):
         """Return (V, C) from (ln theta, A_V); NaN off the grid."""
         v0, c0, _ = self.v0_c0(teff, logg, mh)
-        return v0 - 5.0 * ln_theta / math.log(10.0) + self.k_v * a_v, c0 + (self.k_v - self.k_k) * a_v
+        v = v0 - 5.0 * ln_theta / math.log(10.0) + self.k_v * a_v
+        return v, c0 + (self.k_v - self.k_k) * a_v
 
 
 def colour_table(grid, r_v=3.1):

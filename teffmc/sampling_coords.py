@@ -48,6 +48,11 @@ class SamplerCoordinates:
         self.pairs = np.array(self.pairs, int).reshape(-1, 2)
         self.colour = self._colour_slots(colour)
 
+    @property
+    def coordinate_tag(self):
+        """Name of the coordinate system, stored in checkpoints ("standard" or "colour")."""
+        return "colour" if self.colour is not None else "standard"
+
     def _colour_slots(self, table):
         """Columns of the colour coordinates (teffmc.sampling_colour), or None.
 
@@ -80,7 +85,7 @@ class SamplerCoordinates:
                 for a in ("teff", "logg", "mh")]
 
     def _from_colour(self, u):
-        """u with (V, C) replaced by (ln theta, A_V) (a copy)."""
+        """Return a copy of u with (V, C) replaced by (ln theta, A_V)."""
         u = np.array(u, float, copy=True)
         if self.colour is not None:
             col = self.colour

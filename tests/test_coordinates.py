@@ -70,3 +70,76 @@ def test_prior_draws_have_the_density_of_the_coordinates(rng):
             assert abs(counts[a, b] - expect) < 5 * np.sqrt(expect) + 0.01 * expect
             checked += 1
     assert checked >= 20
+
+
+class _ColourSpace(_Space):
+    names = ["teff", "logg", "theta", "a_v"]
+    priors = [Prior("uniform", low=3000.0, high=4500.0), Prior("uniform", low=0.0, high=1.0),
+              Prior("loguniform", low=0.5, high=50.0), Prior("uniform", low=0.0, high=3.0)]
+
+    def fixed_values(self):
+        return {"mh": -0.25}
+
+
+def _colour_table():
+    """A small analytic V0, C0 table (test numbers) on a 4 x 2 x 2 node grid."""
+    from teffmc.photosphere import Grid
+    from teffmc.sampling_colour import ColourTable
+
+    t, g = np.array([3000.0, 3500.0, 4000.0, 4500.0]), np.array([0.0, 1.0])
+    m = np.array([-0.5, 0.0])
+    tt, gg, mm = np.meshgrid(t, g, m, indexing="ij")
+    cube = np.stack([8.0 - 2e-3 * (tt - 3000) + 0.1 * gg - 0.3 * mm,
+                     5.0 - 1.5e-3 * (tt - 3000) + 0.05 * gg + 0.2 * mm], axis=-1)
+    return ColourTable(Grid(t, g, m, np.array([1.0, 2.0]), cube, name="test colours"),
+                       1.0, 0.12)
+
+
+def test_colour_coordinates_round_trip_and_jacobian(rng):
+    """(teff, logg, ln theta, a_v) <-> (teff, logg, V, C) with [M/H] fixed: x(u(x)) = x and
+    log |dx/du| against a finite-difference determinant (change of variables, common
+    practice, no source)."""
+    space = _ColourSpace()
+    coords = SamplerCoordinates(space, space.log_prior, colour=_colour_table())
+    assert coords.coordinate_tag == "colour" and coords.colour["mh"] == -0.25
+    x = space.sample_prior(rng, 40)
+    u = coords.to_u(x)
+    np.testing.assert_allclose(coords.to_x(u), x, rtol=1e-10, atol=1e-12)
+    for k in range(8):
+        jac = np.empty((4, 4))
+        for j in range(4):
+            h = 1e-6 * max(abs(u[k, j]), 1e-3)
+            e = np.zeros(4)
+            e[j] = h
+            jac[:, j] = (coords.to_x(u[k] + e) - coords.to_x(u[k] - e)) / (2 * h)
+        assert np.log(abs(np.linalg.det(jac))) == pytest.approx(coords.jacobian(u[k]),
+                                                                abs=1e-6)
+    # off the table's grid (teff beyond its nodes) the point is invalid, not extrapolated
+    bad = u[:1].copy()
+    bad[0, 0] = 5000.0
+    assert np.all(np.isnan(coords.to_x(bad)[0, 2:])) and coords(bad)[0] == -np.inf
+
+
+def test_colour_coordinates_only_where_they_apply():
+    space = _ColourSpace()
+    assert SamplerCoordinates(space, space.log_prior).colour is None
+    uniform_theta = _ColourSpace()
+    uniform_theta.priors = [*space.priors[:2], Prior("uniform", low=0.5, high=50.0),
+                            space.priors[3]]
+    assert SamplerCoordinates(uniform_theta, uniform_theta.log_prior,
+                              colour=_colour_table()).colour is None
+
+
+def test_colour_table_of_the_builtin_grid():
+    """V0 at a node is the photometry channel's synthetic V at theta = 1 mas, A_V = 0, and
+    the band extinctions follow the definition of A_V at 5500 A: A(V band) / A_V close to
+    1 and A(Ks) / A_V ~ 0.1 (CCM89 at 2.2 micron ~0.12, from memory)."""
+    from teffmc.photosphere import load_grid
+    from teffmc.sampling_colour import colour_table
+
+    grid = load_grid("builtin")
+    table = colour_table(grid)
+    assert 0.9 < table.k_v < 1.05 and 0.05 < table.k_k < 0.2
+    v0, c0, ok = table.v0_c0(np.array([3600.0]), np.array([0.0]), np.array([0.0]))
+    assert ok.all() and np.isfinite(v0).all() and 1.0 < c0[0] < 8.0   # M star V - Ks
+    assert colour_table(load_grid("blackbody")) is None

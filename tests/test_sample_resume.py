@@ -177,3 +177,25 @@ def test_a_file_that_is_not_a_checkpoint_is_refused(target, tmp_path):
     with pytest.raises(ConfigError, match="notes.h5:checkpoint: is not a readable"):
         run_sampler(target.log_prob, target.mean, names=target.names, seed=0,
                     checkpoint=path, resume=True, **RUN)
+
+
+def test_resume_refuses_a_checkpoint_in_other_coordinates(target, tmp_path):
+    """A chain written in one set of sampler coordinates is not resumed in another (its
+    numbers would mean other parameters); checkpoints without the tag are "standard"."""
+
+    class Colour:
+        coordinate_tag = "colour"
+
+        def __call__(self, x):
+            return target.log_prob(x)
+
+    path = tmp_path / "run.h5"
+    kw = {**RUN, "max_steps": 200, "tau_factor": 1e9}  # short, unconverged
+    with pytest.warns(ConvergenceWarning):
+        run_sampler(target.log_prob, target.mean, names=target.names, seed=0,
+                    checkpoint=path, **kw)
+    assert read_checkpoint(path)["coordinates"] == "standard"
+    with pytest.raises(ConfigError, match="run.h5:coordinates: checkpoint holds a chain in "
+                                          "standard sampler coordinates"):
+        run_sampler(Colour(), target.mean, names=target.names, seed=0, checkpoint=path,
+                    resume=True, **kw)
