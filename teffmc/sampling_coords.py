@@ -1,4 +1,5 @@
-"""The sampler's coordinates: log coordinates and the veil's (c, e) pair, with the Jacobian.
+"""The sampler's coordinates: log coordinates, the veil's (c, e) pair and the colour
+coordinates (teffmc.sampling_colour), with the Jacobian.
 
 See DEVELOPERS.md, "Sampler coordinates".
 """
