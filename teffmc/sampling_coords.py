@@ -1,5 +1,6 @@
-"""The sampler's coordinates: log coordinates, the veil's (c, e) pair and the colour
-coordinates (teffmc.sampling_colour), with the Jacobian.
+"""The sampler's coordinates: log, the veil's (c, e) pair and colour, with the Jacobian.
+
+Colour coordinates: teffmc.sampling_colour.
 
 See DEVELOPERS.md, "Sampler coordinates".
 """
