@@ -26,6 +26,7 @@ import numpy as np
 __all__ = ["ColourTable", "colour_table"]
 
 BANDS = ("bessell-V", "twomass-Ks")
+_CACHE = {}   # (grid checksum, r_v) -> ColourTable: ~2 s to build for the built-in grid
 
 
 class ColourTable:
@@ -74,8 +75,21 @@ def colour_table(grid, r_v=3.1):
 
     None for an analytic photosphere (no nodes) or a grid that does not cover V and Ks.
     The magnitudes are the photometry channel's own (hat-averaged pixels, Vega system,
-    the default CCM89 law at ``r_v``).
+    the default CCM89 law at ``r_v``). Kept per grid checksum, so the stars of a batch
+    share one table per worker.
     """
+    if not hasattr(grid, "log_flux"):
+        return None
+    key = (grid.checksum, float(r_v))
+    if key not in _CACHE:
+        if len(_CACHE) >= 4:
+            _CACHE.pop(next(iter(_CACHE)))
+        _CACHE[key] = _build(grid, r_v)
+    return _CACHE[key]
+
+
+def _build(grid, r_v):
+    """Compute the table of :func:`colour_table` (None when the grid misses V or Ks)."""
     from .config import ModelSpec
     from .errors import TeffmcError
     from .model import PhotometryChannel
@@ -83,15 +97,13 @@ def colour_table(grid, r_v=3.1):
     from .photosphere import Grid
     from .priors import Prior
 
-    if not hasattr(grid, "log_flux"):
-        return None
     try:
         phot = make_photometry(list(BANDS), np.zeros(2), np.full(2, 0.02), ["vega"] * 2)
         chan = PhotometryChannel(phot, grid, ModelSpec(grid_nuisance=False),
                                  Prior("fixed", value=r_v))
     except TeffmcError:
         return None
-    present = grid._present
+    present = np.all(np.isfinite(grid.log_flux), axis=-1)   # nodes that are not holes
     tt, gg, mm = np.meshgrid(grid.teff, grid.logg, grid.mh, indexing="ij")
     n = int(present.sum())
 

@@ -98,7 +98,10 @@ class SamplerCoordinates:
 
     def to_x(self, u):
         """Map sampler coordinates ``u`` (..., ndim) to parameters ``x``; NaN where invalid."""
-        x = self._from_colour(u)
+        return self._x_of(self._from_colour(u))
+
+    def _x_of(self, x):
+        """Return x from u already out of colour coordinates (:meth:`_from_colour`), in place."""
         x[..., self.log] = np.exp(x[..., self.log])
         t, c = self.pairs[:, 0], self.pairs[:, 1]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -121,7 +124,10 @@ class SamplerCoordinates:
 
     def jacobian(self, u):
         """Return log |dx/du| at ``u`` (..., ndim), shape (...)."""
-        u = self._from_colour(u)
+        return self._jacobian_of(self._from_colour(u))
+
+    def _jacobian_of(self, u):
+        """Return log |dx/du| from u already out of colour coordinates."""
         t, c = self.pairs[:, 0], self.pairs[:, 1]
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             d = -np.expm1(-u[..., t])
@@ -130,13 +136,17 @@ class SamplerCoordinates:
         return np.sum(u[..., self.log], axis=-1) + pair + const
 
     def __call__(self, u):
-        """Return the log density in ``u``, log p(x(u)) + log |dx/du|, shape (n,)."""
-        u = np.atleast_2d(np.asarray(u, float))
-        x = self.to_x(u)
+        """Return the log density in ``u``, log p(x(u)) + log |dx/du|, shape (n,).
+
+        The colour coordinates are undone once and shared by x and the Jacobian (their
+        table lookup is the costly part).
+        """
+        plain = self._from_colour(np.atleast_2d(np.asarray(u, float)))
+        x = self._x_of(plain.copy())
         ok = np.all(np.isfinite(x), axis=1)
-        out = np.full(u.shape[0], -np.inf)
+        out = np.full(x.shape[0], -np.inf)
         if ok.any():
-            out[ok] = self.log_post(x[ok]) + self.jacobian(u[ok])
+            out[ok] = self.log_post(x[ok]) + self._jacobian_of(plain[ok])
         out[np.isnan(out)] = -np.inf
         return out
 
