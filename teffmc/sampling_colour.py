@@ -48,13 +48,8 @@ class ColourTable:
     def v0_c0(self, teff, logg, mh):
         """Return (V0, C0, inside): NaN and False where the point is off the grid."""
         teff, logg, mh = np.broadcast_arrays(*(np.asarray(v, float) for v in (teff, logg, mh)))
+        out, ok = self.grid.interpolate_log_masked(teff, logg, mh)
         shape = teff.shape
-        teff, logg, mh = teff.ravel(), logg.ravel(), mh.ravel()
-        ok = np.isfinite(teff) & np.isfinite(logg) & np.isfinite(mh)
-        ok[ok] = self.grid.check_inside(teff[ok], logg[ok], mh[ok])
-        out = np.full((teff.size, 2), np.nan)
-        if ok.any():
-            out[ok] = self.grid.interpolate_log(teff[ok], logg[ok], mh[ok])
         return out[:, 0].reshape(shape), out[:, 1].reshape(shape), ok.reshape(shape)
 
     def to_theta_av(self, teff, logg, mh, v, c):

@@ -44,10 +44,10 @@ def test_multilinear_is_linear_in_each_axis(rng):
     np.testing.assert_allclose(got, want, rtol=0, atol=2e-6)
 
 
-def test_dense_and_sparse_products_agree(rng, monkeypatch):
-    """The dense product over the cells the walkers touch (clustered walkers) and the
-    sparse one (spread walkers) give the same multilinear interpolation, also with a
-    nuisance axis, and equal the 8-corner sum written out (common practice, no source)."""
+def test_compiled_interpolation_equals_corner_sum(rng, monkeypatch):
+    """The interpolation with a nuisance axis, by the dense product over the cells the
+    walkers touch and by the compiled pass per corner, equals the 8-corner sum written
+    out (common practice, no source); the masked form gives NaN rows off the grid."""
     import teffmc.photosphere.grid as grid_mod
     from teffmc.photosphere.nuisance import NuisanceAxis
 
@@ -58,10 +58,16 @@ def test_dense_and_sparse_products_agree(rng, monkeypatch):
     g = Grid(g.teff, g.logg, g.mh, g.wave, g.log_flux, name="toy", nuisance=(axis,))
     pts = rng.uniform([3000, 0, -0.5], [4000, 1, 0], (30, 3))
     x = rng.uniform(-0.5, 0.5, 30)
-    dense = g.interpolate_log(*pts.T, {"tio": x})
-    monkeypatch.setattr(grid_mod, "_DENSE_MODELS", 0)
-    sparse = g.interpolate_log(*pts.T, {"tio": x})
-    np.testing.assert_allclose(dense, sparse, rtol=0, atol=1e-12)
+    dense = g.interpolate_log(*pts.T, {"tio": x})            # the compiled pass
+    off = np.array([[2999.0, 0.5, -0.2], [3500.0, np.nan, -0.2], [3500.0, 0.5, 0.01]])
+    masked, ok = g.interpolate_log_masked(*np.vstack([pts, off]).T,
+                                          {"tio": np.concatenate([x, np.zeros(3)])})
+    np.testing.assert_array_equal(ok, [True] * 30 + [False] * 3)
+    np.testing.assert_allclose(masked[:30], dense, rtol=0, atol=1e-12)
+    assert np.all(np.isnan(masked[30:]))
+    monkeypatch.setattr(grid_mod, "_DENSE_WORK", 0)          # the dense BLAS product
+    np.testing.assert_allclose(g.interpolate_log(*pts.T, {"tio": x}), dense, rtol=0,
+                               atol=1e-12)
     lf = g.log_flux.astype(float)
     d1 = (axis.plus - axis.minus) / (2 * axis.step)
     d2 = (axis.plus - 2 * g.log_flux + axis.minus) / axis.step**2
@@ -74,6 +80,24 @@ def test_dense_and_sparse_products_agree(rng, monkeypatch):
             node = (i + a, b, c)
             want = want + w * (lf[node] + x[k] * d1[node] + 0.5 * x[k] ** 2 * d2[node])
         np.testing.assert_allclose(dense[k], want, rtol=0, atol=1e-9)
+
+
+@pytest.mark.parametrize("dense_work", [0, 10**9])
+def test_face_next_to_a_hole_stays_finite(rng, monkeypatch, dense_work):
+    """A point on the face of a cell away from a hole has zero weight on the hole and a
+    finite flux, by both products; a point inside a cell touching it is off the grid."""
+    import teffmc.photosphere.grid as grid_mod
+    from teffmc.photosphere.nuisance import NuisanceAxis
+
+    monkeypatch.setattr(grid_mod, "_DENSE_WORK", dense_work)
+    g = _toy_grid(rng, holes=[(2, 0, 0)])        # 4000 K: a zero-weight corner at 3500 K
+    axis = NuisanceAxis(name="tio", step=np.log(2.0), minus=g.log_flux - 0.1,
+                        plus=g.log_flux + 0.1, low=0.5, high=2.0, note="")
+    g = Grid(g.teff, g.logg, g.mh, g.wave, g.log_flux, name="toy", nuisance=(axis,))
+    out, ok = g.interpolate_log_masked([3500.0, 3700.0], [0.5, 0.5], [-0.25, -0.25],
+                                       {"tio": np.array([0.1, 0.1])})
+    np.testing.assert_array_equal(ok, [True, False])
+    assert np.all(np.isfinite(out[0])) and np.all(np.isnan(out[1]))
 
 
 def test_off_grid_error_carries_point_and_bounds(rng):
