@@ -3,8 +3,9 @@ parallel efficiency, the engine's overhead per star, peak memory per worker.
 
 Usage::
 
-    python bench/bench_batch.py [--stars 50] [--kind small|survey] [--workers 1 2]
-                                [--scheduler ADDRESS] [--out FOLDER]
+    python bench/bench_batch.py [--stars 50] [--kind small|survey|survey-defaults]
+                                [--workers 1 2] [--scheduler ADDRESS] [--out FOLDER]
+                                [--format png,csv,html]
     python bench/bench_batch.py --stars 1000 --kind survey --workers 2   # the large survey
 
 Kinds of simulated INVENTED stars (noise drawn, one seed each):
@@ -13,7 +14,12 @@ Kinds of simulated INVENTED stars (noise drawn, one seed each):
   that grid (``mismatch = "none"``), Teff and A_V free, 16 walkers: a few seconds a star
   (the stars of tests/test_batch.py);
 - ``survey``: :func:`teffmc.simulate.simulate_survey` -- the built-in grid, seven bands
-  and a 6000-7500 A spectrum at R = 1000, default priors and sampler: 5 free parameters.
+  and a 6000-7500 A spectrum at R = 1000 made by that grid, default priors and sampler,
+  the mismatch term and the grid nuisances off (the data are the grid's own): 5 free
+  parameters (teff, logg, mh, theta, a_v); ``--format png,csv,html`` sets the report
+  files each star writes (default all);
+- ``survey-defaults``: the same stars with every default (10 free parameters: the
+  mismatch term's three and the two grid nuisances added).
 
 Each worker count fits all stars from scratch through :func:`teffmc.fit_many` (an
 embedded ``LocalCluster``, or the cluster at ``--scheduler``). Printed per worker count:
@@ -108,13 +114,26 @@ def engine_numbers(out):
             "caches": {w: v.get("caches", {}) for w, v in rep["workers"].items()}}
 
 
+def make_stars(args, folder):
+    """The configs of ``args.stars`` stars of ``args.kind`` in ``folder``."""
+    from teffmc.simulate import simulate_survey
+
+    if args.kind == "small":
+        return small_stars(folder, args.stars)
+    formats = None if args.format is None else [f for f in args.format.split(",") if f]
+    return simulate_survey(folder, args.stars, formats=formats,
+                           terms=args.kind == "survey-defaults")
+
+
 def main():
     from teffmc import fit_many
-    from teffmc.simulate import simulate_survey
 
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--stars", type=int, default=50)
-    ap.add_argument("--kind", choices=("small", "survey"), default="small")
+    ap.add_argument("--kind", choices=("small", "survey", "survey-defaults"), default="small")
+    ap.add_argument("--format", default=None,
+                    help="[report] formats of the survey stars, comma-separated (default: "
+                    "all report files)")
     ap.add_argument("--workers", type=int, nargs="+", default=[1, 2])
     ap.add_argument("--scheduler", help="attach to this Dask scheduler (once, instead of "
                     "--workers)")
@@ -122,8 +141,7 @@ def main():
     args = ap.parse_args()
     root = Path(args.out) if args.out else Path(tempfile.mkdtemp(prefix="bench_batch_"))
     root.mkdir(parents=True, exist_ok=True)
-    make = small_stars if args.kind == "small" else simulate_survey
-    configs = make(root / "stars", args.stars)
+    configs = make_stars(args, root / "stars")
     print(f"{args.stars} simulated stars ({args.kind}) in {root / 'stars'}")
     print(f"{'workers':>9} {'batch [s]':>10} {'per star [s]':>13} {'one fit [s]':>12} "
           f"{'stars/hour':>11} {'converged':>10} {'overhead':>9} {'peak MB/worker':>15}")

@@ -12,7 +12,15 @@ from pathlib import Path
 from scipy import special
 
 from .components import SWITCHES
-from .config_spec import DEFAULT_MISMATCH, Config, Epoch, ModelSpec, SamplerSpec, SpectrumSpec
+from .config_spec import (
+    DEFAULT_MISMATCH,
+    REPORT_FORMATS,
+    Config,
+    Epoch,
+    ModelSpec,
+    SamplerSpec,
+    SpectrumSpec,
+)
 from .dust.extinction import LAWS
 from .dust.materials import MATERIALS
 from .errors import ConfigError
@@ -231,6 +239,20 @@ def _sampler(s):
     return sampler
 
 
+def _report_formats(top):
+    """Read ``[report] formats``: the report files each run writes (default: all)."""
+    r = top.sub("report")
+    if r is None:
+        return REPORT_FORMATS
+    formats = r.get("formats", list, list(REPORT_FORMATS))
+    bad = [f for f in formats if f not in REPORT_FORMATS]
+    if bad or len(set(formats)) != len(formats):
+        raise r.err("formats", f"should list distinct formats among {', '.join(REPORT_FORMATS)}"
+                    f" but got {formats!r}", formats)
+    r.done()
+    return tuple(formats)
+
+
 def _distance(top):
     """Read the distance or parallax prior (at most one of them)."""
     distance = _prior(top, "distance_pc")
@@ -307,6 +329,7 @@ def parse_config(table, path="<config>"):
     pr.done()
     sampler = _sampler(top.sub("sampler") or _Reader(str(path), {}, "sampler."))
     distance, parallax = _distance(top)
+    report_formats = _report_formats(top)
     hyps = []
     for i, t in enumerate(top.get("hypothesis", list, [])):
         if not isinstance(t, dict):
@@ -322,7 +345,7 @@ def parse_config(table, path="<config>"):
     return Config(path=path, name=name, grid=grids[0], grids=tuple(grids),
                   epochs=tuple(epochs), model=model, priors=priors, shared=shared,
                   sampler=sampler, distance_pc=distance, parallax_mas=parallax,
-                  hypotheses=tuple(hyps), raw=table)
+                  hypotheses=tuple(hyps), raw=table, report_formats=report_formats)
 
 
 def load_config(path):

@@ -80,6 +80,10 @@ class SamplerSpec:
     nlive: int = 200
 
 
+#: the report formats (teffmc.report.output): figures, LaTeX, Markdown, CSV, the HTML page
+REPORT_FORMATS = ("png", "pdf", "tex", "md", "csv", "html")
+
+
 @dataclass(frozen=True)
 class Config:
     """A whole run configuration: data, model, priors, sampler, hypotheses and grids."""
@@ -97,6 +101,7 @@ class Config:
     hypotheses: tuple = ()
     raw: dict = field(default_factory=dict, compare=False, repr=False)
     grids: tuple = ()   # several grids: each is fitted, the results stacked (teffmc.stacking)
+    report_formats: tuple = REPORT_FORMATS   # [report] formats: the files written per run
 
     def variants(self):
         """``[(name, Config)]``: one config per declared hypothesis (or just this one)."""

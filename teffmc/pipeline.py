@@ -188,7 +188,7 @@ def finish_run(prep, result, folder, *, log, hypothesis=None):
         log("CAUTION: " + c)
     log(f"done: {folder.name.removesuffix('.partial')}")
     (folder / "log.txt").write_text("\n".join(log.lines) + "\n", encoding="utf-8")
-    write_run_products(folder, dt=dt, summary=strict_json(summary))
+    write_run_products(folder, prep.config.report_formats, dt=dt, summary=strict_json(summary))
     return dt, summary
 
 

@@ -20,22 +20,28 @@ _SURVEY_CONFIG = """\
 # Truth: teff = {teff:.1f} K, a_v = {a_v:.3f}, theta = {theta:.3f} mas, logg = 0, mh = 0.
 name = "{name} (invented)"
 grid = "{grid}"
-[[epoch]]
+{model}[[epoch]]
 photometry = "{name}_phot.ecsv"
-spectra = [{{ file = "{name}_spec.ecsv", resolution = 1000.0 }}]
+spectra = [{{ file = "{name}_spec.ecsv", resolution = 1000.0{mismatch} }}]
 [priors]
 teff = {{ dist = "uniform", low = 3000, high = 4500 }}
-"""
+{report}"""
+# terms=False: the data are the grid's own, so its likelihood needs neither the mismatch
+# term nor the grid nuisances (5 free parameters: teff, logg, mh, theta, a_v)
+_NO_TERMS = {"model": "[model]\ngrid_nuisance = false\n", "mismatch": ', mismatch = "none"'}
 
 
-def simulate_survey(folder, n, *, grid="builtin", seed=1):
+def simulate_survey(folder, n, *, grid="builtin", seed=1, terms=True, formats=None):
     """Write ``n`` INVENTED stars (data + one config each) into ``folder``.
 
     Each star: Teff 3400-4200 K, A_V 0.3-1.5, theta 1-5 mas (uniform draws), log g 0,
     [M/H] 0; BVRIJHKs photometry and a 6000-7500 A spectrum at R = 1000, S/N 50, noise
-    drawn. The configs give only the data and a Teff prior (defaults for the rest);
-    the true values are in a comment at the top of each config. Used by
-    ``bench/bench_batch.py`` and ``examples/make_survey_data.py``.
+    drawn. The configs give only the data and a Teff prior (defaults for the rest: 10
+    free parameters with the mismatch term and the grid nuisances); the true values are
+    in a comment at the top of each config. ``terms=False`` turns the mismatch term and
+    the grid nuisances off (5 free parameters: right for data the grid made itself);
+    ``formats`` (a list) sets ``[report] formats``. Used by ``bench/bench_batch.py`` and
+    ``examples/make_survey_data.py``.
 
     Returns
     -------
@@ -57,7 +63,12 @@ def simulate_survey(folder, n, *, grid="builtin", seed=1):
         simulate_epoch(folder, name, g, ModelSpec(), truth, wave_range=(6000.0, 7500.0),
                        resolution=1000.0, snr=50.0, rng=rng)
         path = folder / f"{name}.toml"
-        path.write_text(_SURVEY_CONFIG.format(name=name, grid=grid, **truth), encoding="utf-8")
+        extra = dict({"model": "", "mismatch": ""} if terms else _NO_TERMS)
+        extra["report"] = ("" if formats is None else
+                           "[report]\nformats = [" + ", ".join(f'"{f}"' for f in formats)
+                           + "]\n")
+        path.write_text(_SURVEY_CONFIG.format(name=name, grid=grid, **truth, **extra),
+                        encoding="utf-8")
         configs.append(path)
     return configs
 

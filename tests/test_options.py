@@ -79,3 +79,23 @@ def test_parallax_gives_distance(tmp_path):
     with pytest.raises(ConfigError, match="not both"):
         _case(tmp_path,
               top_extra='parallax_mas = { fixed = 2.0 }\ndistance_pc = { fixed = 500.0 }')
+
+
+def test_report_formats_choose_the_files_of_a_run(tmp_path):
+    """``[report] formats`` writes only the files asked (common practice, no source: a
+    survey keeps the per-star files small); an unknown format is refused before fitting."""
+    from small_star import small_star_config
+    from teffmc.run import fit
+
+    simulate_epoch(tmp_path, "alpha", load_grid("blackbody"), ModelSpec(),
+                   {**TRUTH, "teff": 4000.0, "theta": 2.0}, resolution=100.0,
+                   wave_range=(4500.0, 9000.0), rng=np.random.default_rng(1))
+    text = small_star_config("alpha", 400)
+    (tmp_path / "a.toml").write_text(text + '[report]\nformats = ["png", "csv"]\n')
+    fit(tmp_path / "a.toml", tmp_path / "run", quiet=True)
+    files = {p.name for p in (tmp_path / "run").iterdir()}
+    assert {"corner.png", "fit.png", "table.csv", "summary.json", "summary.ecsv",
+            "posterior.nc"} <= files
+    assert not {f for f in files if f.endswith((".pdf", ".tex", ".md", ".html"))}
+    with pytest.raises(ConfigError, match="formats"):
+        _case(tmp_path, top_extra='[report]\nformats = ["png", "docx"]')

@@ -25,3 +25,16 @@ def test_survey_configs_load_and_are_reproducible(tmp_path):
         assert 3400 <= teff <= 4200 and 0.3 <= a_v <= 1.5 and 1.0 <= theta <= 5.0
     c = simulate_survey(tmp_path / "c", 1, grid="blackbody", seed=4)
     assert c[0].read_text() != a[0].read_text()
+
+
+def test_survey_without_terms_has_five_free_parameters(tmp_path):
+    """terms=False: the mismatch term and the grid nuisances off (bench_batch's survey
+    star, 5 free parameters); formats goes to [report]."""
+    from teffmc.run import prepare
+
+    full = simulate_survey(tmp_path / "a", 1, seed=3)[0]
+    five = simulate_survey(tmp_path / "b", 1, seed=3, terms=False, formats=["png", "csv"])[0]
+    assert len(prepare(full, log=lambda m: None).space.names) == 10
+    prep = prepare(five, log=lambda m: None)
+    assert list(prep.space.names) == ["teff", "logg", "mh", "theta", "a_v"]
+    assert prep.config.report_formats == ("png", "csv")

@@ -24,13 +24,13 @@ from pathlib import Path
 
 import numpy as np
 
+from ..config_spec import REPORT_FORMATS as FORMATS
 from ..errors import ConfigError, DataError
 from . import style
 
 __all__ = ["FORMATS", "FIGURE_FORMATS", "parse_formats", "write_report", "write_run_products",
            "write_comparison_products", "compared_runs"]
 
-FORMATS = ("png", "pdf", "tex", "md", "csv", "html")
 FIGURE_FORMATS = ("png", "pdf")
 
 
