@@ -125,9 +125,8 @@ def make_stars(args, folder):
                            terms=args.kind == "survey-defaults")
 
 
-def main():
-    from teffmc import fit_many
-
+def parse_args():
+    """The command line."""
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--stars", type=int, default=50)
     ap.add_argument("--kind", choices=("small", "survey", "survey-defaults"), default="small")
@@ -138,7 +137,13 @@ def main():
     ap.add_argument("--scheduler", help="attach to this Dask scheduler (once, instead of "
                     "--workers)")
     ap.add_argument("--out", help="keep the stars and runs here (default: a temporary folder)")
-    args = ap.parse_args()
+    return ap.parse_args()
+
+
+def main():
+    from teffmc import fit_many
+
+    args = parse_args()
     root = Path(args.out) if args.out else Path(tempfile.mkdtemp(prefix="bench_batch_"))
     root.mkdir(parents=True, exist_ok=True)
     configs = make_stars(args, root / "stars")
