@@ -195,3 +195,16 @@ def test_grid_file_is_read_once_per_process_until_replaced(tmp_path, rng):
     os.utime(path, ns=(t, t))  # a replaced file has a new modification time
     c = load_grid(path)
     assert c is not a and c.checksum == new.checksum != a.checksum
+
+
+def test_grids_on_pixels_are_kept_per_grid(rng):
+    """A grid on the same pixels and line-spread function is made once and shared (the
+    stars of a survey observed alike); other pixels or resolutions give other grids."""
+    g = _toy_grid(rng)
+    wave = np.linspace(4500.0, 8500.0, 30)
+    a = g.on_pixels(wave, resolution=500.0)
+    assert g.on_pixels(wave.copy(), resolution=500.0) is a
+    assert g.on_pixels(wave, resolution=1000.0) is not a
+    assert g.on_pixels(wave + 1.0, resolution=500.0) is not a
+    np.testing.assert_array_equal(g._made_on_pixels(wave, 500.0, None, False).log_flux,
+                                  a.log_flux)

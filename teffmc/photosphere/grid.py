@@ -20,6 +20,7 @@ nodes, for a whole batch of points at once. A point outside the axes raises
 hole raises it too (interpolation never silently crosses a hole).
 """
 
+import hashlib
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -35,6 +36,8 @@ _LN10 = np.log(10.0)
 _DENSE_MODELS = 64
 #: walkers x pixels above which the dense product is used when there are nuisance terms
 _DENSE_WORK = 100_000
+#: grids on other pixels kept per grid (Grid.on_pixels)
+_PIXEL_GRIDS = 4
 
 
 def _check_axis(name, values):
@@ -307,6 +310,18 @@ class Grid:
             raise GridError(
                 f"grid {self.name!r} covers {self.wave[0]:.1f}-{self.wave[-1]:.1f} Angstrom "
                 f"but the data need {wave[0]:.1f}-{wave[-1]:.1f} Angstrom")
+        # the last few grids made are kept on this grid: the stars of a survey observed
+        # alike (same pixels and resolution) share them, and their interpolation stacks
+        key = (hashlib.sha256(wave.tobytes()).hexdigest(), resolution, fwhm_A, bool(average))
+        cache = self.__dict__.setdefault("_pixel_grids", {})
+        if key not in cache:
+            if len(cache) >= _PIXEL_GRIDS:
+                cache.pop(next(iter(cache)))
+            cache[key] = self._made_on_pixels(wave, resolution, fwhm_A, average)
+        return cache[key]
+
+    def _made_on_pixels(self, wave, resolution, fwhm_A, average):
+        """Compute the grid of :meth:`on_pixels` (not cached)."""
         if average:
             from ..observe.lsf import hat_average_matrix
 
