@@ -62,10 +62,12 @@ def sample_posterior(prep, checkpoint, *, resume, quiet, log):
     In the coordinates of :class:`SamplerCoordinates`.
     """
     from .sample import find_start, run_sampler
+    from .sampling_colour import table_for
     from .sampling_start import laplace_ball
 
     s = prep.config.sampler
-    coords = SamplerCoordinates(prep.space, prep.log_post, colour=_colour_table(prep))
+    coords = SamplerCoordinates(prep.space, prep.log_post,
+                                colour=table_for(prep.space, prep.grid))
     if coords.colour is not None:
         log("sampling theta and a_v as the grid's synthetic V and V - Ks (colour coordinates)")
     rng = np.random.default_rng(s.seed)
@@ -83,16 +85,6 @@ def sample_posterior(prep, checkpoint, *, resume, quiet, log):
                          check_every=s.check_every, checkpoint=checkpoint, resume=resume,
                          progress=not quiet, log=log)
     return coords.result_in_x(result)
-
-
-def _colour_table(prep):
-    """Return the grid's colour table when the colour coordinates could apply, else None."""
-    from .sampling_colour import colour_table
-
-    names = set(prep.space.names)
-    if not {"teff", "theta", "a_v"} <= names:
-        return None
-    return colour_table(prep.grid)
 
 
 def _versions():

@@ -63,6 +63,15 @@ def _photometry_record(ep, ch):
             "bands": list(ch.bands)}
 
 
+def _colour_coordinates(prep):
+    """Return True when the sampler uses the colour coordinates (teffmc.sampling_colour)."""
+    from .sampling_colour import table_for
+    from .sampling_coords import SamplerCoordinates
+
+    table = table_for(prep.space, prep.grid)
+    return SamplerCoordinates(prep.space, None, colour=table).coordinate_tag == "colour"
+
+
 def run_provenance(prep):
     """Return the ``[teffmc.provenance]`` record of a prepared run (see the module docstring)."""
     cfg = prep.config
@@ -94,6 +103,7 @@ def run_provenance(prep):
                     "rhat_groups": RHAT_GROUPS, "rhat_walker_max": RHAT_WALKER_MAX,
                     "burn_taus": BURN_TAUS, "thin_taus": THIN_TAUS,
                     "log_coordinates": [n for n, p in zip(prep.space.names, prep.space.priors)
-                                        if p.kind == "loguniform"]},
+                                        if p.kind == "loguniform"],
+                    "colour_coordinates": _colour_coordinates(prep)},
         "shared": list(cfg.shared),
     }

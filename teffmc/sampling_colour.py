@@ -23,7 +23,7 @@ import math
 
 import numpy as np
 
-__all__ = ["ColourTable", "colour_table"]
+__all__ = ["ColourTable", "colour_table", "table_for"]
 
 BANDS = ("bessell-V", "twomass-Ks")
 _CACHE = {}   # (grid checksum, r_v) -> ColourTable: ~2 s to build for the built-in grid
@@ -63,6 +63,17 @@ class ColourTable:
         v0, c0, _ = self.v0_c0(teff, logg, mh)
         v = v0 - 5.0 * ln_theta / math.log(10.0) + self.k_v * a_v
         return v, c0 + (self.k_v - self.k_k) * a_v
+
+
+def table_for(space, grid):
+    """Return the grid's colour table when the colour coordinates could apply, else None.
+
+    They need teff, theta and a_v among the sampled parameters (the finer conditions are
+    checked by :class:`teffmc.sampling_coords.SamplerCoordinates`).
+    """
+    if not {"teff", "theta", "a_v"} <= set(space.names):
+        return None
+    return colour_table(grid)
 
 
 def colour_table(grid, r_v=3.1):

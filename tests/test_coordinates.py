@@ -140,3 +140,34 @@ def test_colour_table_of_the_builtin_grid():
     v0, c0, ok = table.v0_c0(np.array([3600.0]), np.array([0.0]), np.array([0.0]))
     assert ok.all() and np.isfinite(v0).all() and 1.0 < c0[0] < 8.0   # M star V - Ks
     assert colour_table(load_grid("blackbody")) is None
+
+
+def test_methods_say_when_the_colour_coordinates_were_used(tmp_path):
+    """run.toml records the colour coordinates (teffmc.provenance) and the methods text
+    says so, in Markdown and in LaTeX; a multi-epoch fit does not use them."""
+    from teffmc.config import ModelSpec
+    from teffmc.photosphere import load_grid
+    from teffmc.provenance import run_provenance
+    from teffmc.report.methods import methods_context, render_methods
+    from teffmc.run import prepare
+    from teffmc.simulate import simulate_epoch
+
+    truth = {"teff": 3700.0, "logg": 0.0, "mh": 0.0, "a_v": 0.5, "r_v": 3.1, "theta": 4.0}
+    simulate_epoch(tmp_path, "o", load_grid("builtin"), ModelSpec(), truth,
+                   wave_range=(6000.0, 7000.0), resolution=500.0, noise=False)
+    epoch = ('[[epoch]]\nlabel = "{}"\nphotometry = "o_phot.ecsv"\n'
+             'spectra = [{{ file = "o_spec.ecsv", resolution = 500.0 }}]\n')
+    (tmp_path / "one.toml").write_text('grid = "builtin"\n' + epoch.format("a"))
+    (tmp_path / "two.toml").write_text('grid = "builtin"\n' + epoch.format("a")
+                                       + epoch.format("b"))
+    quiet = {"log": lambda m: None}
+    one = run_provenance(prepare(tmp_path / "one.toml", **quiet))
+    two = run_provenance(prepare(tmp_path / "two.toml", **quiet))
+    assert one["sampler"]["colour_coordinates"] is True
+    assert two["sampler"]["colour_coordinates"] is False
+    for rec, said in ((one, True), (two, False)):
+        record = {"teffmc": {"provenance": rec}}
+        md = render_methods(methods_context(record, {}), "md")[0]
+        tex = render_methods(methods_context(record, {}), "tex")[0]
+        assert ("synthetic V magnitude and V − Ks colour" in md) is said
+        assert ("V$-$K$_s$ colour" in tex) is said

@@ -194,7 +194,8 @@ def render_methods(ctx, fmt):
                        pm=r"$\pm$" if tex else "±", mu=r"$\mu$" if tex else "µ",
                        teff=r"$T_\mathrm{eff}$" if tex else "Teff",
                        av=r"$A_V$" if tex else "A_V", rv=r"$R_V$" if tex else "R_V",
-                       matern=r"Mat\'ern" if tex else "Matérn")
+                       matern=r"Mat\'ern" if tex else "Matérn",
+                       minus=r"$-$" if tex else " − ", sub_s=r"$_s$" if tex else "s")
     # a component's sentence is a template fragment, rendered in the same context
     env.globals["fragment"] = jinja2.pass_context(
         lambda context, src: env.from_string(src).render(context.get_all()))
