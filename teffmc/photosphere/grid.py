@@ -172,33 +172,18 @@ class Grid:
         return "\n".join(lines)
 
     # ------------------------------------------------------------------ interpolation
-    def _locate(self, name, x):
-        axis = getattr(self, name)
-        if axis.size == 1:
-            return np.zeros(x.shape, int), np.zeros(x.shape)
-        i = np.clip(np.searchsorted(axis, x, side="right") - 1, 0, axis.size - 2)
-        w = (x - axis[i]) / (axis[i + 1] - axis[i])
-        return i, w
-
     def check_inside(self, teff, logg, mh):
-        """Boolean array: which points lie inside the axes and away from holes."""
+        """Boolean array: which points lie inside the axes and away from holes.
+
+        A corner with zero weight (a point on the opposite face) does not count; the same
+        compiled check as the interpolation (:func:`.interp_kernel.corner_weights`).
+        """
         teff, logg, mh = np.broadcast_arrays(*(np.asarray(v, float) for v in (teff, logg, mh)))
-        ok = np.ones(teff.shape, bool)
-        for ax, v in zip(AXES, (teff, logg, mh)):
-            lo, hi = self.bounds[ax]
-            ok &= (v >= lo) & (v <= hi)
-        if not self._present.all():
-            idx = [self._locate(ax, np.where(ok, v, getattr(self, ax)[0]))
-                   for ax, v in zip(AXES, (teff, logg, mh))]
-            for corner in np.ndindex(2, 2, 2):
-                sel = [np.minimum(i + c, getattr(self, ax).size - 1)
-                       for (i, _), c, ax in zip(idx, corner, AXES)]
-                # a corner with zero weight (point on the opposite face) does not count
-                weight = np.ones(ok.shape, bool)
-                for (_, w), c in zip(idx, corner):
-                    weight &= (w > 0) if c else (w < 1)
-                ok &= self._present[tuple(sel)] | ~weight
-        return ok
+        n = teff.size
+        ok = corner_weights(self.teff, self.logg, self.mh, self._present.ravel(),
+                            *(np.ascontiguousarray(v.ravel()) for v in (teff, logg, mh)),
+                            np.empty((n, 8), np.int64), np.empty((n, 8)))
+        return ok.reshape(teff.shape)
 
     def interpolate_log(self, teff, logg, mh, nuisance=None):
         """log10 surface flux at a batch of points, shape (n, n_wave).
